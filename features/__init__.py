@@ -1,0 +1,1 @@
+"""features stage (see DESIGN.md)."""

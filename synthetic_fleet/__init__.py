@@ -1,0 +1,1 @@
+"""synthetic_fleet stage (see DESIGN.md)."""

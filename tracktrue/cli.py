@@ -1,0 +1,244 @@
+"""The ``tracktrue`` command line: parse, call one stage function, print a summary.
+
+Exit codes (also in the README):
+  0  success
+  1  finished, but some input was rejected (see the summary / rejects table)
+  2  usage error or unusable input (message says which file / row / problem)
+  3  another run holds the store's lock
+  4  a prerequisite is missing (e.g. no features yet: run the earlier stage)
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import logging
+import sys
+from pathlib import Path
+
+from tracktrue import __version__
+from tracktrue.errors import UserError
+from tracktrue.store import LockHeld, Store, TableMissing
+
+EXIT_OK, EXIT_REJECTS, EXIT_USAGE, EXIT_LOCKED, EXIT_MISSING = 0, 1, 2, 3, 4
+
+
+def _date(text: str) -> dt.date:
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a date (YYYY-MM-DD): {text!r}") from None
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not an integer: {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1: {value}")
+    return value
+
+
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be positive: {value}")
+    return value
+
+
+def _add_store(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--store",
+        metavar="DIR",
+        help="store folder (default: $TRACKTRUE_STORE, else ./tracktrue-store)",
+    )
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="tracktrue",
+        description="Rank a fleet's vehicles by how much their ABS/ESC chassis sensors disagree, "
+        "before a warning lamp takes them off the road.",
+    )
+    parser.add_argument("--version", action="version", version=f"tracktrue {__version__}")
+    parser.add_argument("-v", "--verbose", action="count", default=0, help="more log output (-vv for debug)")
+    parser.add_argument("--no-progress", action="store_true", help="no progress bars")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    p = sub.add_parser("synth", help="generate a synthetic fleet's CSV logs with ground truth",
+                       description="Simulate a fleet with developing sensor faults and write ordinary CSV exports, "
+                       "vehicles.csv and truth.csv.")
+    p.add_argument("--out", required=True, type=Path, metavar="DIR", help="output folder")
+    p.add_argument("--vehicles", type=_positive_int, default=24, metavar="N", help="fleet size (default 24)")
+    p.add_argument("--days", type=_positive_int, default=60, metavar="D", help="simulated days (default 60)")
+    p.add_argument("--seed", type=int, default=7, metavar="S", help="random seed (default 7)")
+    p.add_argument("--rate", type=_positive_float, default=10.0, metavar="HZ", help="sample rate (default 10 Hz)")
+    p.add_argument("--start", type=_date, default=dt.date(2026, 3, 2), metavar="DATE",
+                   help="first simulated day (default 2026-03-02)")
+    p.set_defaults(func=cmd_synth)
+
+    p = sub.add_parser("ingest", help="read CSV data-log exports into the store",
+                       description="Recognise, validate and store CSV trip logs; files and folders are read recursively.")
+    p.add_argument("paths", nargs="+", type=Path, metavar="PATH", help="CSV files or folders")
+    _add_store(p)
+    p.add_argument("--profile", type=Path, metavar="FILE.toml", help="mapping profile for unrecognised exports")
+    p.add_argument("--vehicles", type=Path, metavar="vehicles.csv", help="load or update the vehicle registry")
+    p.add_argument("--trip-gap", type=_positive_float, default=300.0, metavar="SECONDS",
+                   help="split a file into trips on time gaps longer than this (default 300 s)")
+    p.set_defaults(func=cmd_ingest)
+
+    p = sub.add_parser("features", help="compute per-trip sensor-disagreement features",
+                       description="Compute features for trips that have none yet (incremental).")
+    _add_store(p)
+    p.add_argument("--rebuild", action="store_true", help="recompute every trip")
+    p.set_defaults(func=cmd_features)
+
+    p = sub.add_parser("score", help="score trips and vehicles against the fleet",
+                       description="Peer-normalise features, score trips with an isolation forest, run the drift "
+                       "detector and publish vehicle statuses.")
+    _add_store(p)
+    p.add_argument("--as-of", type=_date, metavar="DATE", help="use only trips that started before the end of DATE")
+    p.set_defaults(func=cmd_score)
+
+    p = sub.add_parser("rank", help="print the ranked fleet", description="Print the published ranking.")
+    _add_store(p)
+    p.add_argument("--top", type=_positive_int, metavar="N", help="only the first N rows")
+    p.add_argument("--status", metavar="S", action="append", help="only this status (repeatable)")
+    p.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format")
+    p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("vehicle", help="one vehicle's trip history and implicated features",
+                       description="Print one vehicle's status, score trend and implicated features over its trips.")
+    p.add_argument("vehicle_id", metavar="ID")
+    _add_store(p)
+    p.add_argument("--trips", type=_positive_int, default=20, metavar="N", help="recent trips to list (default 20)")
+    p.set_defaults(func=cmd_vehicle)
+
+    p = sub.add_parser("evaluate", help="measure the ranking against ground truth or lamp events",
+                       description="Precision at k, lead time, false alarms and attribution accuracy beside baselines.")
+    _add_store(p)
+    p.add_argument("--truth", type=Path, metavar="truth.csv", help="ground truth; without it, lamp events are the truth")
+    p.add_argument("--as-of", type=_date, metavar="DATE", help="evaluate as of this date")
+    p.set_defaults(func=cmd_evaluate)
+
+    p = sub.add_parser("demo", help="run the whole chain on the embedded default store",
+                       description="Generate the demo fleet, ingest it, compute features, score and print the ranking.")
+    _add_store(p)
+    p.add_argument("--vehicles", type=_positive_int, default=None, metavar="N", help="demo fleet size")
+    p.add_argument("--days", type=_positive_int, default=None, metavar="D", help="demo days")
+    p.add_argument("--seed", type=int, default=7, metavar="S", help="random seed (default 7)")
+    p.set_defaults(func=cmd_demo)
+
+    p = sub.add_parser("dashboard", help="open the triage dashboard in a browser",
+                       description="Serve the Streamlit dashboard (reads published tables only).")
+    _add_store(p)
+    p.add_argument("--port", type=_positive_int, default=8501, metavar="N", help="port (default 8501)")
+    p.add_argument("--host", default="127.0.0.1", metavar="ADDR",
+                   help="bind address (default 127.0.0.1; the app has no login)")
+    p.set_defaults(func=cmd_dashboard)
+    return parser
+
+
+def _progress(args) -> bool:
+    return not args.no_progress and sys.stderr.isatty()
+
+
+def cmd_synth(args) -> int:
+    from synthetic_fleet import generate_fleet
+
+    summary = generate_fleet(args.out, n_vehicles=args.vehicles, days=args.days, seed=args.seed,
+                             rate_hz=args.rate, start=args.start, progress=_progress(args))
+    print(summary.describe())
+    return EXIT_OK
+
+
+def cmd_ingest(args) -> int:
+    from ingest import run_ingest
+
+    store = Store.open(args.store)
+    summary = run_ingest(args.paths, store, profile=args.profile, vehicles_csv=args.vehicles,
+                         trip_gap_s=args.trip_gap, progress=_progress(args))
+    print(summary.describe())
+    return summary.exit_code
+
+
+def cmd_features(args) -> int:
+    from features import run_features
+
+    summary = run_features(Store.open(args.store), rebuild=args.rebuild, progress=_progress(args))
+    print(summary.describe())
+    return EXIT_OK
+
+
+def cmd_score(args) -> int:
+    from models import run_scoring
+
+    summary = run_scoring(Store.open(args.store), as_of=args.as_of, progress=_progress(args))
+    print(summary.describe())
+    return EXIT_OK
+
+
+def cmd_rank(args) -> int:
+    from models import format_ranking, ranking_table
+
+    table = ranking_table(Store.open(args.store), statuses=args.status, top=args.top)
+    print(format_ranking(table, args.format))
+    return EXIT_OK
+
+
+def cmd_vehicle(args) -> int:
+    from models import vehicle_report
+
+    print(vehicle_report(Store.open(args.store), args.vehicle_id, n_trips=args.trips))
+    return EXIT_OK
+
+
+def cmd_evaluate(args) -> int:
+    from models import evaluate
+
+    report = evaluate(Store.open(args.store), truth_csv=args.truth, as_of=args.as_of)
+    print(report.describe())
+    return EXIT_OK
+
+
+def cmd_demo(args) -> int:
+    from tracktrue.pipeline import run_demo
+
+    return run_demo(Store.open(args.store), n_vehicles=args.vehicles, days=args.days, seed=args.seed,
+                    progress=_progress(args))
+
+
+def cmd_dashboard(args) -> int:
+    from dashboard import launch
+
+    return launch(Store.open(args.store), port=args.port, host=args.host)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    level = logging.WARNING - 10 * min(args.verbose, 2)
+    logging.basicConfig(level=level, format="%(levelname)s %(name)s: %(message)s")
+    try:
+        return args.func(args)
+    except UserError as exc:
+        print(f"tracktrue {args.command}: {exc}", file=sys.stderr)
+        return exc.exit_code
+    except TableMissing as exc:
+        print(f"tracktrue {args.command}: {exc} — run the earlier stage first "
+              "(ingest → features → score), or `tracktrue demo`.", file=sys.stderr)
+        return EXIT_MISSING
+    except LockHeld as exc:
+        print(f"tracktrue {args.command}: {exc}; try again when it has finished.", file=sys.stderr)
+        return EXIT_LOCKED
+    except KeyboardInterrupt:
+        print(f"tracktrue {args.command}: interrupted; the store is consistent, rerun to finish.", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

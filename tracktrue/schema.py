@@ -1,0 +1,161 @@
+"""Names every stage agrees on (DESIGN.md, "Contracts").
+
+Kept in one place so a rename is one edit and a test can check that each
+published table carries exactly these columns. Nothing here computes anything.
+"""
+
+from __future__ import annotations
+
+#: Wheel positions, always in this order (STYLE.md).
+POSITIONS: tuple[str, ...] = ("fl", "fr", "rl", "rr")
+
+WHEEL_SPEED_COLUMNS: tuple[str, ...] = tuple(f"wheel_speed_{p}" for p in POSITIONS)
+
+#: Canonical sample columns (SI units, ISO 8855 axes: x forward, y left, z up;
+#: yaw and steering positive to the left) and their units.
+SAMPLE_UNITS: dict[str, str] = {
+    "vehicle_id": "text",
+    "trip_id": "text",
+    "time": "timestamp UTC",
+    **{c: "m/s" for c in WHEEL_SPEED_COLUMNS},
+    "vehicle_speed": "m/s",
+    "yaw_rate": "rad/s",
+    "steering_angle": "rad",
+    "accel_long": "m/s^2",
+    "accel_lat": "m/s^2",
+    "brake": "bool",
+    "lamp_abs": "bool",
+    "lamp_esc": "bool",
+    "dtc": "text",
+}
+SAMPLE_COLUMNS: tuple[str, ...] = tuple(SAMPLE_UNITS)
+OPTIONAL_SAMPLE_COLUMNS: frozenset[str] = frozenset(
+    {"vehicle_speed", "brake", "lamp_abs", "lamp_esc", "dtc"}
+)
+NUMERIC_SIGNALS: tuple[str, ...] = (
+    *WHEEL_SPEED_COLUMNS,
+    "vehicle_speed",
+    "yaw_rate",
+    "steering_angle",
+    "accel_long",
+    "accel_lat",
+)
+
+#: Vehicle registry (vehicles.csv) columns.
+REGISTRY_REQUIRED: tuple[str, ...] = (
+    "vehicle_id",
+    "platform",
+    "wheelbase_m",
+    "track_front_m",
+    "track_rear_m",
+    "steering_ratio",
+    "tyre_radius_m",
+)
+REGISTRY_OPTIONAL: tuple[str, ...] = ("understeer_gradient_deg_per_g", "depot", "vin")
+
+#: Catalog tables published for readers.
+TRIPS_COLUMNS: tuple[str, ...] = (
+    "trip_id",
+    "vehicle_id",
+    "start_time",
+    "end_time",
+    "n_samples",
+    "distance_km",
+    "sample_rate_hz",
+    "source_file",
+)
+REJECTS_COLUMNS: tuple[str, ...] = ("source_file", "row", "reason")
+
+#: suspected_component vocabulary of the ranking output.
+COMPONENTS: tuple[str, ...] = (
+    *(f"wheel_sensor_{p}" for p in POSITIONS),
+    *(f"tyre_{p}" for p in POSITIONS),
+    "yaw_sensor",
+    "steering_angle_sensor",
+    "accel_long_sensor",
+    "accel_lat_sensor",
+    "none",
+)
+
+#: Ranking output columns (`tracktrue rank --format csv|json`).
+RANKING_COLUMNS: tuple[str, ...] = (
+    "rank",
+    "vehicle_id",
+    "platform",
+    "score",
+    "status",
+    "suspected_component",
+    "evidence",
+    "flagged_since",
+    "last_trip",
+)
+
+#: Per-trip features named in DESIGN.md; features/ may add more.
+CORE_FEATURES: tuple[str, ...] = (
+    *(f"wheel_ratio_{p}_pct" for p in POSITIONS),
+    *(f"wheel_jitter_{p}_pct" for p in POSITIONS),
+    *(f"wheel_dropouts_{p}" for p in POSITIONS),
+    "yaw_rest_dps",
+    "yaw_offset_dps",
+    "yaw_gain",
+    "steer_center_deg",
+    "steer_yaw_residual_dps",
+    "accel_long_rest_g",
+    "accel_lat_rest_g",
+    "accel_long_residual_g",
+    "lat_residual_g",
+)
+
+#: Vehicle statuses of the ranking, most urgent first. ``lamp_lit`` vehicles
+#: need service whatever their score and are shown, never hidden.
+STATUSES: tuple[str, ...] = ("lamp_lit", "inspect", "watch", "ok", "insufficient_data")
+
+#: Published by models/ (one row per vehicle, ordered by rank). Starts with the
+#: ranking contract; the rest serves the dashboard and `tracktrue vehicle`.
+VEHICLE_STATUS_COLUMNS: tuple[str, ...] = (
+    *RANKING_COLUMNS,
+    "depot",
+    "suggestion",
+    "lamp_on",
+    "n_trips",
+    "as_of",
+)
+
+#: Published by models/: one row per scored trip (plus ``z_<feature>`` columns,
+#: the peer-normalised value of each model feature).
+TRIP_SCORES_COLUMNS: tuple[str, ...] = (
+    "trip_id",
+    "vehicle_id",
+    "start_time",
+    "peer_group",
+    "score",
+    "top_feature",
+    "top_z",
+)
+
+#: Published by models/: the drift detector's path per vehicle and statistic.
+VEHICLE_DRIFT_COLUMNS: tuple[str, ...] = (
+    "vehicle_id",
+    "trip_id",
+    "start_time",
+    "statistic",
+    "value",
+    "cusum_hi",
+    "cusum_lo",
+    "threshold",
+    "alarm",
+)
+
+#: Published by models/: the healthy band of each feature per peer group.
+PEER_BANDS_COLUMNS: tuple[str, ...] = ("peer_group", "feature", "p05", "p50", "p95", "n_vehicles")
+
+#: Quality columns every trip_features row carries.
+QUALITY_COLUMNS: tuple[str, ...] = (
+    "duration_s",
+    "distance_km",
+    "sample_rate_hz",
+    "missing_fraction",
+    "standstill_s",
+    "cruise_s",
+    "moving_s",
+)
