@@ -1,0 +1,33 @@
+"""The stage packages are ours alone and every command answers --help."""
+
+import importlib.metadata as md
+import subprocess
+import sys
+
+import pytest
+
+from tracktrue.cli import build_parser
+
+STAGES = ("tracktrue", "ingest", "features", "models", "dashboard", "synthetic_fleet")
+
+
+def test_each_top_level_package_belongs_to_our_distribution_alone():
+    # Generic names like `models` could collide with another installed
+    # distribution (DESIGN.md); the README installs into a project venv.
+    owners = md.packages_distributions()
+    for name in STAGES:
+        assert owners.get(name) == ["tracktrue"], f"{name} is provided by {owners.get(name)}"
+
+
+def _subcommands():
+    parser = build_parser()
+    action = next(a for a in parser._actions if a.dest == "command")
+    return sorted(action.choices)
+
+
+@pytest.mark.parametrize("command", [None, *_subcommands()])
+def test_every_command_has_help(command):
+    args = [sys.executable, "-m", "tracktrue.cli"] + ([command] if command else []) + ["--help"]
+    out = subprocess.run(args, capture_output=True, text=True, timeout=60)
+    assert out.returncode == 0, out.stderr
+    assert "usage: tracktrue" in out.stdout
