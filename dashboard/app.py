@@ -1,0 +1,15 @@
+"""Entry script that ``streamlit run`` serves: the page list, nothing else."""
+
+import streamlit as st
+
+st.set_page_config(page_title="tracktrue", page_icon=":material/tire_repair:", layout="wide")
+
+PAGES = [
+    st.Page("pages/triage.py", title="Fleet triage", icon=":material/format_list_numbered:",
+            url_path="triage", default=True),
+    st.Page("pages/plan.py", title="Workshop plan", icon=":material/event_available:", url_path="plan"),
+    st.Page("pages/vehicle.py", title="Vehicle record", icon=":material/timeline:", url_path="vehicle"),
+    st.Page("pages/intake.py", title="Log intake", icon=":material/inbox:", url_path="intake"),
+]
+
+st.navigation(PAGES, position="sidebar").run()
