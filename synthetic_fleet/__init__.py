@@ -1,1 +1,12 @@
-"""synthetic_fleet stage (see DESIGN.md)."""
+"""synthetic_fleet: a physically grounded simulator of an invented service fleet
+with injected, developing sensor faults and ground truth (see DESIGN.md).
+
+Only the command line and tests import it; the product's stages never do.
+"""
+
+from synthetic_fleet.drive import DRIVES
+from synthetic_fleet.faults import CONFOUNDERS, FAULTS, LAMP_SEVERITY
+from synthetic_fleet.platforms import PLATFORMS
+from synthetic_fleet.trip import trip_samples
+
+__all__ = ["CONFOUNDERS", "DRIVES", "FAULTS", "LAMP_SEVERITY", "PLATFORMS", "trip_samples"]

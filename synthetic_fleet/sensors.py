@@ -1,0 +1,193 @@
+"""From driven motion to what the chassis sensors report (canonical SI signals).
+
+Healthy sensors are imperfect too: each wheel's effective rolling radius
+differs by a few tenths of a percent, tyres slip a little under braking and
+traction, and every sensor has noise and a small offset of realistic size
+that drifts with temperature within its specification (magnitudes: common
+practice, from memory). Faults and confounders act on the same chain, so a
+fault shows exactly where its physics puts it and nowhere else.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from synthetic_fleet.drive import DriveTrace
+from synthetic_fleet.faults import MAGNITUDE_AT_SEVERITY_1 as MAG, parse_fault
+from synthetic_fleet.platforms import Platform
+from synthetic_fleet.vehicle_motion import (
+    road_wheel_angle_for_curvature,
+    understeer_coefficient,
+    wheel_centre_speeds,
+    yaw_rate_single_track,
+)
+from tracktrue.schema import POSITIONS
+from tracktrue.units import DEG_RAD, G0_MPS2
+
+#: Healthy sensor imperfections (1-sigma unless said otherwise).
+WHEEL_RADIUS_SPREAD = 0.0025  # relative, per wheel
+WHEEL_NOISE_MPS = 0.012
+WHEEL_NOISE_FRAC = 0.0008
+YAW_NOISE_DPS = 0.07
+YAW_OFFSET_DPS = 0.12  # clipped at +-0.3
+YAW_GAIN_ERROR = 0.005
+YAW_TEMP_COEFF_DPS_PER_C = 0.005  # clipped at +-0.01
+STEER_NOISE_DEG = 0.1
+STEER_OFFSET_DEG = 0.8
+ACCEL_NOISE_MPS2 = 0.03
+ACCEL_OFFSET_G = 0.004  # clipped at +-0.01
+ACCEL_TEMP_COEFF_G_PER_C = 0.00008  # clipped at +-0.00015
+#: Sensor temperature rises by this much towards a steady state after start.
+WARMUP_C, WARMUP_TAU_S, REFERENCE_C = 12.0, 900.0, 20.0
+#: Wheel reads 0 below this speed (passive sensors: no usable amplitude).
+CUTOFF_MPS = {"active": 0.1, "passive": 0.8}
+#: Longitudinal slip per g of deceleration (front, rear) and of traction on the driven axle.
+BRAKE_SLIP_PER_G = (0.04, 0.028)
+TRACTION_SLIP_PER_G = 0.05
+#: Rough road: common speed ripple on all wheels, extra accelerometer and yaw vibration.
+ROUGH_RIPPLE_FRAC, ROUGH_WHEEL_FRAC, ROUGH_ACCEL_MPS2, ROUGH_YAW_DPS = 0.006, 0.0015, 0.35, 0.25
+
+
+@dataclass(frozen=True)
+class SensorHealth:
+    """One vehicle's healthy sensor imperfections (fixed for its life in the simulation)."""
+
+    wheel_radius_factor: np.ndarray
+    yaw_offset_dps: float
+    yaw_gain_error: float
+    yaw_temp_coeff_dps_per_c: float
+    steer_offset_deg: float
+    accel_offset_g: np.ndarray  # (long, lat)
+    accel_temp_coeff_g_per_c: np.ndarray
+    fault_sign: float  # direction of an offset / gain fault, should one develop
+
+    @classmethod
+    def draw(cls, rng: np.random.Generator) -> "SensorHealth":
+        return cls(
+            wheel_radius_factor=1.0 + np.clip(rng.normal(0, WHEEL_RADIUS_SPREAD, 4), -0.006, 0.006),
+            yaw_offset_dps=float(np.clip(rng.normal(0, YAW_OFFSET_DPS), -0.3, 0.3)),
+            yaw_gain_error=float(rng.normal(0, YAW_GAIN_ERROR)),
+            yaw_temp_coeff_dps_per_c=float(np.clip(rng.normal(0, YAW_TEMP_COEFF_DPS_PER_C), -0.01, 0.01)),
+            steer_offset_deg=float(np.clip(rng.normal(0, STEER_OFFSET_DEG), -2.0, 2.0)),
+            accel_offset_g=np.clip(rng.normal(0, ACCEL_OFFSET_G, 2), -0.01, 0.01),
+            accel_temp_coeff_g_per_c=np.clip(rng.normal(0, ACCEL_TEMP_COEFF_G_PER_C, 2), -0.00015, 0.00015),
+            fault_sign=float(rng.choice([-1.0, 1.0])),
+        )
+
+
+@dataclass(frozen=True)
+class TripCondition:
+    """The vehicle's state during one trip: fault severity, tyres, load, weather, road."""
+
+    fault: str | None = None
+    severity: float = 0.0
+    #: Effective rolling radius of each tyre relative to its healthy value
+    #: (tyre changes, rotations, a compact spare, deflation, a mismatched tyre).
+    tyre_factor: np.ndarray = field(default_factory=lambda: np.ones(4))
+    load: float = 0.0  # 0 empty .. 1 full
+    ambient_c: float = 15.0
+    rough_road: bool = False
+    park_grade_start: float = 0.0  # rise over run
+    park_grade_end: float = 0.0
+    #: Seconds into the trip when the lamp lights (0: already lit at start; None: off).
+    lamp_from_s: float | None = None
+
+
+def _fault_size(cond: TripCondition, kind: str, key: str) -> float:
+    if cond.fault is None or parse_fault(cond.fault).kind != kind:
+        return 0.0
+    return cond.severity * MAG[key]
+
+
+def _tyre_fault_factor(cond: TripCondition, sign: float) -> np.ndarray:
+    """Rolling-radius factor of the tyre distractors: a deflating tyre shrinks, a
+    mismatched replacement is larger or smaller by a step."""
+    factor = np.ones(4)
+    if cond.fault is not None:
+        fault = parse_fault(cond.fault)
+        if fault.kind in ("tyre_deflation", "tyre_mismatch"):
+            i = POSITIONS.index(fault.position)
+            factor[i] = (1.0 - _fault_size(cond, "tyre_deflation", "tyre_deflation_frac")
+                         + sign * _fault_size(cond, "tyre_mismatch", "tyre_mismatch_frac"))
+    return factor
+
+
+def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
+                   centre: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    n = len(trace.t_s)
+    dt = trace.t_s[1] - trace.t_s[0] if n > 1 else 0.1
+    a_g = trace.accel_mps2 / G0_MPS2
+    braking = np.minimum(a_g, 0.0)[:, None] * np.repeat(BRAKE_SLIP_PER_G, 2)[None, :]
+    driven = np.array([1.0, 1.0, 0.0, 0.0]) if spec.driven_axle == "front" else np.array([0.0, 0.0, 1.0, 1.0])
+    traction = np.maximum(a_g, 0.0)[:, None] * TRACTION_SLIP_PER_G * driven[None, :]
+    radius = health.wheel_radius_factor * cond.tyre_factor * _tyre_fault_factor(cond, health.fault_sign)
+    wheels = centre * (1.0 + braking + traction) / radius[None, :]
+    wheels += rng.normal(0.0, 1.0, (n, 4)) * (WHEEL_NOISE_MPS + WHEEL_NOISE_FRAC * centre)
+    if cond.rough_road:
+        ripple = rng.standard_normal(n)  # common to all wheels: the body bounces, every wheel sees it
+        ripple = np.convolve(ripple, np.ones(3) / np.sqrt(3), mode="same")
+        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[:, None] + ROUGH_WHEEL_FRAC * rng.standard_normal((n, 4))
+    fault = parse_fault(cond.fault) if cond.fault else None
+    if fault is not None and fault.kind == "tone_ring" and cond.severity > 0:
+        i = POSITIONS.index(fault.position)
+        v = wheels[:, i]
+        angle = np.cumsum(v) * dt / spec.tyre_radius_m + rng.uniform(0, 2 * np.pi)
+        periodic = np.sin(angle) + 0.5 * np.sin(2 * angle + 1.3)
+        steps = (rng.random(n) < min(0.3, MAG["tone_ring_step_prob"] * cond.severity)) * rng.standard_normal(n)
+        wheels[:, i] = v * (1.0 + cond.severity * (MAG["tone_ring_error_frac"] * periodic
+                                                   + MAG["tone_ring_step_frac"] * steps))
+    cutoff = np.full(4, CUTOFF_MPS[spec.wheel_sensor_kind])
+    amplitude = np.ones((n, 4))
+    if fault is not None and fault.kind == "air_gap" and cond.severity > 0:
+        # A passive sensor's amplitude grows with speed (common practice): as the
+        # gap widens, the speed below which it is too weak to count teeth rises.
+        i = POSITIONS.index(fault.position)
+        cutoff[i] += MAG["air_gap_dropout_speed_mps"] * cond.severity**1.2
+        amplitude[:, i] = np.exp(0.12 * rng.standard_normal(n))  # runout of ring and bearing
+    return np.where(wheels * amplitude < cutoff[None, :], 0.0, np.maximum(wheels, 0.0))
+
+
+def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
+            rng: np.random.Generator) -> dict[str, np.ndarray]:
+    """Canonical SI signals as the sensors report them (before any logger artefacts)."""
+    n = len(trace.t_s)
+    v = trace.speed_mps
+    k_us_rad_per_g = spec.understeer_gradient_deg_per_g * DEG_RAD * (1.0 + spec.load_understeer_change * cond.load)
+    k = understeer_coefficient(k_us_rad_per_g, spec.wheelbase_m)
+    road_wheel = road_wheel_angle_for_curvature(v, trace.curvature_1pm, spec.wheelbase_m, k)
+    yaw = yaw_rate_single_track(v, road_wheel, spec.wheelbase_m, k)
+    centre = wheel_centre_speeds(v, yaw, spec.wheelbase_m, spec.track_front_m, spec.track_rear_m)
+    wheels = _wheel_signals(trace, spec, health, cond, centre, rng)
+
+    sensor_c = cond.ambient_c + WARMUP_C * (1.0 - np.exp(-trace.t_s / WARMUP_TAU_S)) - REFERENCE_C
+    rough = 1.0 if cond.rough_road else 0.0
+    s = health.fault_sign
+    yaw_gain = 1.0 + health.yaw_gain_error + s * _fault_size(cond, "yaw_gain", "yaw_gain_frac")
+    yaw_offset_dps = (health.yaw_offset_dps + health.yaw_temp_coeff_dps_per_c * sensor_c
+                      + s * _fault_size(cond, "yaw_offset", "yaw_offset_dps"))
+    yaw_meas = yaw_gain * yaw + DEG_RAD * (
+        yaw_offset_dps + rng.normal(0.0, 1.0, n) * (YAW_NOISE_DPS + rough * ROUGH_YAW_DPS))
+
+    steer_offset_deg = health.steer_offset_deg + s * _fault_size(cond, "steer_offset", "steer_offset_deg")
+    steer = spec.steering_ratio * road_wheel + DEG_RAD * (steer_offset_deg + rng.normal(0.0, STEER_NOISE_DEG, n))
+
+    # Accelerometers measure specific force: gravity along the tilted body axes
+    # adds g·sin(grade + nose-up pitch) to a_x and g·sin(bank) to a_y.
+    nose_up = spec.load_pitch_rad * cond.load + spec.pitch_gradient_rad_per_g * trace.accel_mps2 / G0_MPS2
+    offset_g = health.accel_offset_g[:, None] + health.accel_temp_coeff_g_per_c[:, None] * sensor_c[None, :]
+    offset_g[0] += s * _fault_size(cond, "accel_long_offset", "accel_long_offset_g")
+    offset_g[1] += s * _fault_size(cond, "accel_lat_offset", "accel_lat_offset_g")
+    noise = rng.normal(0.0, 1.0, (2, n)) * (ACCEL_NOISE_MPS2 + rough * ROUGH_ACCEL_MPS2)
+    accel_long = trace.accel_mps2 + G0_MPS2 * (np.sin(trace.grade_rad + nose_up) + offset_g[0]) + noise[0]
+    accel_lat = v * yaw + G0_MPS2 * (np.sin(trace.bank_rad) + offset_g[1]) + noise[1]
+
+    # The controller's vehicle speed: mean of the middle two wheels, robust to one bad wheel.
+    middle = np.sort(wheels, axis=1)[:, 1:3].mean(axis=1)
+    return {
+        "wheel_speed_fl": wheels[:, 0], "wheel_speed_fr": wheels[:, 1],
+        "wheel_speed_rl": wheels[:, 2], "wheel_speed_rr": wheels[:, 3],
+        "vehicle_speed": middle, "yaw_rate": yaw_meas, "steering_angle": steer,
+        "accel_long": accel_long, "accel_lat": accel_lat, "brake": trace.brake.copy(),
+    }

@@ -1,0 +1,134 @@
+"""The in-memory trip API: contract, determinism, and that each fault shows where its physics puts it."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from synthetic_fleet import CONFOUNDERS, FAULTS, LAMP_SEVERITY, PLATFORMS, trip_samples
+from tracktrue.schema import POSITIONS, REGISTRY_OPTIONAL, REGISTRY_REQUIRED, SAMPLE_COLUMNS, WHEEL_SPEED_COLUMNS
+from tracktrue.vin import vin_problem
+
+DEG = np.pi / 180
+G0 = 9.80665
+
+
+def _metrics(df: pd.DataFrame, spec: dict) -> dict:
+    """Crude per-trip summaries, enough to see a fault; the real features live in features/."""
+    w = df[list(WHEEL_SPEED_COLUMNS)].to_numpy()
+    mean = np.nanmean(w, axis=1)
+    still = (np.nanmax(w, axis=1) == 0) & ~df.brake.isna()
+    r_wheels = (df.wheel_speed_rr - df.wheel_speed_rl) / spec["track_rear_m"]
+    cruise = (mean > 8) & (np.abs(r_wheels) < 0.01)
+    moving = mean > 5
+    out = {
+        "yaw_rest_dps": np.nanmedian(df.yaw_rate[still]) / DEG,
+        "steer_center_deg": np.nanmedian(df.steering_angle[cruise]) / DEG,
+        "accel_long_rest_g": np.nanmedian(df.accel_long[still]) / G0,
+        "accel_lat_cruise_g": np.nanmedian(df.accel_lat[cruise]) / G0,
+    }
+    ok = moving & r_wheels.notna() & df.yaw_rate.notna()
+    out["yaw_gain"] = np.polyfit(r_wheels[ok], df.yaw_rate[ok], 1)[0]
+    middle = np.nanmedian(w, axis=1)  # robust to the one bad wheel
+    for i, p in enumerate(POSITIONS):
+        others = np.nanmean(np.delete(w, i, axis=1), axis=1)
+        rel = (w[:, i] - middle) / np.maximum(middle, 1.0)
+        out[f"ratio_{p}_pct"] = 100 * np.nanmedian(rel[cruise])
+        d = np.diff(rel[moving & (w[:, i] > 0)])
+        out[f"jitter_{p}_pct"] = 100 * np.nanmedian(np.abs(d - np.nanmedian(d)))
+        out[f"dropouts_{p}"] = int(np.sum((w[:, i] == 0) & (others > 3)))
+    return out
+
+
+def test_trip_samples_returns_canonical_si_columns_and_a_registry_row():
+    df, spec = trip_samples(duration_s=300, seed=1)
+    assert list(df.columns) == list(SAMPLE_COLUMNS)
+    assert str(df.time.dt.tz) == "UTC" and df.time.is_monotonic_increasing
+    assert df.vehicle_id.notna().all() and df.trip_id.nunique() == 1
+    assert set(REGISTRY_REQUIRED + REGISTRY_OPTIONAL) <= set(spec)
+    assert vin_problem(spec["vin"]) is None
+    assert df.wheel_speed_fl.max() < 40  # m/s, not km/h
+    assert np.abs(df.yaw_rate).max() < 1.5  # rad/s
+    assert 9 < 1 / df.time.diff().dt.total_seconds().median() < 11
+
+
+def test_the_same_seed_gives_the_same_trip():
+    a, _ = trip_samples(fault="tone_ring_fr", duration_s=200, seed=4)
+    b, _ = trip_samples(fault="tone_ring_fr", duration_s=200, seed=4)
+    pd.testing.assert_frame_equal(a, b)
+    c, _ = trip_samples(fault="tone_ring_fr", duration_s=200, seed=5)
+    assert not a[["wheel_speed_fl"]].equals(c[["wheel_speed_fl"]])
+
+
+def test_names_are_listed_for_iteration_and_unknown_names_are_refused():
+    assert len(PLATFORMS) >= 3 and "air_gap_rl" in FAULTS and "spare_fr" in CONFOUNDERS
+    with pytest.raises(ValueError, match="unknown fault"):
+        trip_samples(fault="flux_capacitor")
+    with pytest.raises(ValueError, match="unknown confounder"):
+        trip_samples(confounders=("rain",))
+    with pytest.raises(ValueError, match="unknown platform"):
+        trip_samples("tractor")
+
+
+@pytest.fixture(scope="module")
+def healthy():
+    return {p: _metrics(*trip_samples(p, drive="town", seed=21)) for p in PLATFORMS}
+
+
+def _faulty(fault, platform="lwb_van", severity=1.0):
+    return _metrics(*trip_samples(platform, fault=fault, fault_severity=severity, drive="town", seed=21))
+
+
+def test_damaged_tone_ring_raises_jitter_on_that_wheel_only(healthy):
+    m = _faulty("tone_ring_rl")
+    h = healthy["lwb_van"]
+    assert m["jitter_rl_pct"] > 3 * h["jitter_rl_pct"]
+    for p in ("fl", "fr"):
+        assert m[f"jitter_{p}_pct"] < 1.5 * h[f"jitter_{p}_pct"] + 0.02
+
+
+def test_air_gap_drops_out_at_low_speed_on_that_wheel_only(healthy):
+    m = _faulty("air_gap_fr")
+    assert m["dropouts_fr"] > 20
+    assert all(m[f"dropouts_{p}"] == 0 for p in ("fl", "rl", "rr"))
+    assert all(healthy[k][f"dropouts_{p}"] == 0 for k in PLATFORMS for p in POSITIONS)
+
+
+@pytest.mark.parametrize("fault,key,size", [
+    ("yaw_offset", "yaw_rest_dps", 1.5),
+    ("steer_offset", "steer_center_deg", 7.0),
+    ("accel_long_offset", "accel_long_rest_g", 0.05),
+    ("accel_lat_offset", "accel_lat_cruise_g", 0.05),
+    ("yaw_gain", "yaw_gain", 0.07),
+])
+def test_offset_and_gain_faults_shift_their_own_signal_by_their_size(healthy, fault, key, size):
+    m = _faulty(fault)
+    h = healthy["lwb_van"]
+    assert abs(m[key] - h[key]) == pytest.approx(size, rel=0.25)
+    # the wheels do not see it
+    for p in POSITIONS:
+        assert m[f"ratio_{p}_pct"] == pytest.approx(h[f"ratio_{p}_pct"], abs=0.05)
+
+
+def test_deflating_tyre_raises_that_wheels_ratio_without_jitter_or_dropouts(healthy):
+    m = _faulty("tyre_deflation_fl", platform="pickup")
+    h = healthy["pickup"]
+    assert m["ratio_fl_pct"] - h["ratio_fl_pct"] == pytest.approx(1.0, abs=0.3)  # 1 % smaller radius
+    assert m["jitter_fl_pct"] < 1.5 * h["jitter_fl_pct"] + 0.02 and m["dropouts_fl"] == 0
+
+
+@pytest.mark.parametrize("fault", ["air_gap_rr", "yaw_gain", "tyre_deflation_rr"])
+def test_lamp_lights_only_over_the_threshold_and_never_for_tyres(fault):
+    below, _ = trip_samples(fault=fault, fault_severity=1.0, duration_s=200, seed=2)
+    above, _ = trip_samples(fault=fault, fault_severity=LAMP_SEVERITY, duration_s=200, seed=2)
+    assert not below.lamp_abs.any() and not below.lamp_esc.any() and below.dtc.isna().all()
+    if fault.startswith("tyre"):
+        assert not above.lamp_esc.any() and above.dtc.isna().all()
+    else:
+        assert above.lamp_esc.all() and above.dtc.str.startswith("TT-").all()
+        assert above.lamp_abs.all() == fault.startswith("air_gap")
+
+
+@pytest.mark.parametrize("confounder", CONFOUNDERS)
+def test_confounders_never_light_a_lamp(confounder):
+    df, _ = trip_samples("pickup", confounders=(confounder,), duration_s=200, seed=3)
+    assert not df.lamp_abs.any() and not df.lamp_esc.any() and df.dtc.isna().all()
