@@ -1,0 +1,82 @@
+"""Column plan: which header feeds which canonical signal, and how to convert it to SI.
+
+Profile rules win over the built-in grammar. A problem with one column
+(missing or unknown unit, a voltage without calibration, a second column for
+the same signal) is a column error: that column is not used, the others are.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ingest import grammar
+from ingest.profile import ColumnRule, Profile
+from tracktrue.units import G0_MPS2
+
+
+@dataclass(frozen=True)
+class Column:
+    """One used column: where it is, what it is, how to bring it to SI."""
+
+    index: int
+    header: str
+    signal: str
+    unit: str | None
+    factor: float | None = None  # to SI; None for voltages (see rule) and non-numeric signals
+    rule: ColumnRule | None = None
+
+    @property
+    def quantity(self) -> str:
+        return grammar.QUANTITY[self.signal]
+
+    def to_si(self, raw: np.ndarray) -> np.ndarray:
+        """Profile scale/offset, then unit (or voltage calibration), then optional sign flip."""
+        rule = self.rule
+        value = raw if rule is None else raw * rule.scale + rule.offset
+        if self.factor is None:  # analog accelerometer: volts -> g -> m/s^2
+            value = (value - rule.zero_v) / rule.v_per_g * G0_MPS2
+        else:
+            value = value * self.factor
+        return -value if rule is not None and rule.invert else value
+
+
+@dataclass(frozen=True)
+class ColumnPlan:
+    columns: dict[str, Column]  # canonical signal -> column
+    ignored: list[str]  # headers not recognised (warnings)
+    errors: list[str]  # column-level errors
+
+
+def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:
+    """Map each header to a canonical signal, or say why it is not used."""
+    columns: dict[str, Column] = {}
+    ignored: list[str] = []
+    errors: list[str] = []
+    for index, text in enumerate(header):
+        rec = grammar.recognise(text)
+        name_only = grammar.split_unit(text)[0]
+        rule = profile.rule_for(text, name_only)
+        signal = rule.signal if rule else rec.signal
+        unit = (rule.unit if rule and rule.unit else None) or rec.unit
+        if signal == "ignore":
+            continue
+        if signal is None:
+            if text:
+                ignored.append(text)
+            continue
+        if signal in columns:
+            errors.append(f"column {text!r} also maps to {signal} (already read from {columns[signal].header!r}); not used")
+            continue
+        factor = None
+        if grammar.QUANTITY[signal] in grammar.NUMERIC_QUANTITIES:
+            factor, problem = grammar.unit_factor(signal, unit)
+            if problem is None and factor is None and (rule is None or rule.v_per_g is None):
+                problem = (f"a voltage ({unit}) needs the sensor's zero point and sensitivity "
+                           "(profile keys zero_v and v_per_g)")
+            if problem:
+                errors.append(f"column {text!r}: {problem}; not used")
+                continue
+        columns[signal] = Column(index, text, signal, unit, factor, rule)
+    return ColumnPlan(columns, ignored, errors)

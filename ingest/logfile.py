@@ -1,0 +1,273 @@
+"""One log file: from its bytes to canonical trips and rejected rows.
+
+A pure function of (bytes, file name, folder name, profile, trip gap), so it
+is testable alone and runs the same on any engine. Nothing is dropped
+silently: every data line ends up either in a trip or in ``rejects`` with
+its line number and reason, or the whole file is unusable with a reason.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from ingest.columns import Column, plan_columns
+from ingest.identity import resolve_identity
+from ingest.profile import Profile
+from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
+from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
+from ingest.timebase import parse_time
+from ingest.trips import trip_bounds, trip_quality
+from tracktrue.ids import trip_id
+from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_UNITS, WHEEL_SPEED_COLUMNS
+
+#: Physical plausibility bounds in SI units; a value outside is a rejected row.
+#: Wheel/vehicle speed 0..90 m/s (324 km/h, beyond any road vehicle's top speed);
+#: yaw |r| <= 3 rad/s (172 deg/s; a car spinning at speed stays below ~1.5);
+#: steering-wheel angle |delta| <= 15 rad (~2.4 turns each way, more than any
+#: lock-to-lock); |a| <= 30 m/s^2 (~3 g, beyond tyre grip). Common practice, not a standard.
+BOUNDS_SI: dict[str, tuple[float, float]] = {
+    **{c: (0.0, 90.0) for c in WHEEL_SPEED_COLUMNS},
+    "vehicle_speed": (0.0, 90.0),
+    "yaw_rate": (-3.0, 3.0),
+    "steering_angle": (-15.0, 15.0),
+    "accel_long": (-30.0, 30.0),
+    "accel_lat": (-30.0, 30.0),
+    "odometer": (0.0, 5e6),  # km
+}
+_SI_UNIT = {**SAMPLE_UNITS, "odometer": "km"}
+SWITCH_ON = ["1", "1.0", "true", "t", "on", "yes", "y", "active", "lit"]
+SWITCH_OFF = ["0", "0.0", "false", "f", "off", "no", "n", "inactive"]
+
+
+@dataclass
+class LogTrip:
+    """One trip of one vehicle: its rows (SAMPLE_SCHEMA) and catalog fields."""
+
+    vehicle_id: str
+    trip_id: str
+    samples: pa.Table
+    info: dict  # trips-table fields except sample_file/source_*
+    lines: np.ndarray  # 1-based line of each row (to reject the whole trip if it is stored already)
+
+
+@dataclass
+class LogResult:
+    n_rows: int = 0
+    trips: list[LogTrip] = field(default_factory=list)
+    rejects: list[tuple[int, str]] = field(default_factory=list)  # (line, reason)
+    reject_kinds: Counter = field(default_factory=Counter)
+    warnings: list[str] = field(default_factory=list)
+    column_errors: list[str] = field(default_factory=list)
+    vins: dict[str, str] = field(default_factory=dict)
+    unusable: str | None = None
+    time_basis: str = ""
+
+    @property
+    def n_rejected(self) -> int:
+        return self.n_rows if self.unusable else len(self.rejects)
+
+
+def read_log(raw: bytes, file_name: str, folder_name: str, profile: Profile, trip_gap_s: float) -> LogResult:
+    """Recognise, convert, validate and split one log (see the module docstring)."""
+    result = LogResult()
+    try:
+        _read(raw, file_name, folder_name, profile, trip_gap_s, result)
+    except FileUnusable as exc:
+        problems = "; ".join([str(exc), *result.column_errors])
+        return LogResult(n_rows=result.n_rows, unusable=problems, warnings=result.warnings,
+                         column_errors=result.column_errors)
+    return result
+
+
+class _Flags:
+    """First reason per row, vectorised: each check flags the rows not yet flagged."""
+
+    def __init__(self, lines: np.ndarray):
+        self.lines = lines
+        self.flagged = np.zeros(len(lines), bool)
+        self.rejects: list[tuple[int, str]] = []
+        self.kinds: Counter = Counter()
+
+    def flag(self, mask: np.ndarray, kind: str, message) -> None:
+        idx = np.flatnonzero(mask & ~self.flagged)
+        if len(idx) == 0:
+            return
+        self.flagged[idx] = True
+        self.rejects.extend(zip(self.lines[idx].tolist(), message(idx)))
+        self.kinds[kind] += len(idx)
+
+
+def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> None:
+    log = split_lines(raw)
+    result.n_rows = len(log.data_lines)
+    plan = plan_columns(log.header, profile)
+    result.column_errors = plan.errors
+    if plan.ignored:
+        result.warnings.append("columns not recognised, ignored: " + ", ".join(repr(h) for h in plan.ignored))
+    cols = plan.columns
+    if "time" not in cols:
+        raise FileUnusable(f"no time column (header: {', '.join(log.header)[:200]})")
+    if not any(c in cols for c in WHEEL_SPEED_COLUMNS):
+        raise FileUnusable("no usable wheel speed column")
+    if result.n_rows == 0:
+        raise FileUnusable("no data rows")
+    numeric = [c.index for c in cols.values() if c.signal in BOUNDS_SI]
+    text = [c.index for c in cols.values() if c.signal not in BOUNDS_SI]
+    parsed = parse_rows(log, numeric, text)
+    flags = _Flags(parsed.lines)
+    decimal_comma = log.delimiter != ","
+    n = len(parsed.lines)
+
+    tcol = cols["time"]
+    time_text = parsed.columns[tcol.index]
+    tr = parse_time(time_text, tcol.unit, profile.time_format, profile.timezone or log.metadata.get("timezone"),
+                    log.metadata.get("start"), file_name, decimal_comma)
+    result.time_basis = tr.basis
+    for reason, mask in tr.reasons.items():
+        flags.flag(mask, "bad time", _quoting(tcol.header, time_text, reason))
+    flags.flag(tr.bad, "bad time", _quoting(tcol.header, time_text, "time is not readable"))
+
+    values: dict[str, np.ndarray] = {}
+    for sig, col in cols.items():
+        if sig not in BOUNDS_SI:
+            continue
+        raw_arr = parsed.columns[col.index]
+        raw_values, not_number = to_float(raw_arr, decimal_comma)
+        flags.flag(not_number, "not a number", _quoting(col.header, raw_arr, "is not a number"))
+        si = col.to_si(raw_values)
+        lo, hi = BOUNDS_SI[sig]
+        with np.errstate(invalid="ignore"):
+            out = ~np.isnan(si) & ~((si >= lo) & (si <= hi))
+        flags.flag(out, "out of range", _range_message(col, raw_values, si, lo, hi))
+        values[sig] = si
+
+    switches: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+    for sig in SWITCH_SIGNALS:
+        if sig in cols:
+            arr = parsed.columns[cols[sig].index]
+            on, missing, bad = _switch(arr)
+            flags.flag(bad, "bad switch state",
+                       _quoting(cols[sig].header, arr, "is not an on/off state (1/0, true/false, on/off, yes/no)"))
+            switches[sig] = (on, missing)
+    dtc = clean_text(parsed.columns[cols["dtc"].index]) if "dtc" in cols else None
+
+    ident = resolve_identity(n, _opt(parsed, cols, "vehicle_id"), _opt(parsed, cols, "vin"), log.metadata, folder_name)
+    result.vins = ident.vins
+    result.warnings.extend(ident.warnings)
+
+    kept = _time_order(flags, ident.codes, tr.us)
+    result.rejects = sorted(parsed.structural_rejects + flags.rejects)
+    result.reject_kinds = flags.kinds
+    if parsed.structural_rejects:
+        result.reject_kinds["field count"] += len(parsed.structural_rejects)
+    if len(kept) == 0:
+        return
+    codes, us = ident.codes[kept], tr.us[kept]
+    bounds = trip_bounds(codes, us, gap_s)
+    ids = [trip_id(ident.ids[codes[a]], pd.Timestamp(int(us[a]), unit="us", tz="UTC")) for a, _ in bounds]
+    lengths = np.array([b - a for a, b in bounds])
+    table = _sample_table(kept, ident, np.repeat(np.arange(len(bounds)), lengths), ids, us, values, switches, dtc)
+    present = [s for s in (*values, *switches) if s != "odometer"] + (["dtc"] if dtc is not None else [])
+    for (a, b), tid in zip(bounds, ids):
+        rows = kept[a:b]
+        result.trips.append(_trip(table.slice(a, b - a), tid, ident.ids[codes[a]], us[a:b],
+                                  {s: v[rows] for s, v in values.items()},
+                                  {s: m[rows] for s, (_, m) in switches.items()}, present, parsed.lines[rows]))
+
+
+def _opt(parsed, cols: dict[str, Column], sig: str):
+    return parsed.columns[cols[sig].index] if sig in cols else None
+
+
+def _quoting(header: str, arr: pa.Array, what: str):
+    def message(idx: np.ndarray) -> list[str]:
+        cells = arr.take(pa.array(idx)).to_pylist()
+        return [f"{header}: {c!r} {what}" if c is not None else f"{header}: {what}" for c in cells]
+    return message
+
+
+def _range_message(col: Column, raw: np.ndarray, si: np.ndarray, lo: float, hi: float):
+    unit = _SI_UNIT[col.signal]
+
+    def message(idx: np.ndarray) -> list[str]:
+        return [f"{col.header}: {raw[i]:g} is {si[i]:.6g} {unit}, outside the physical range {lo:g}..{hi:g} {unit}"
+                for i in idx]
+    return message
+
+
+def _switch(arr: pa.Array) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    s = pc.utf8_lower(clean_text(arr))
+    missing = s.is_null().to_numpy(zero_copy_only=False)
+    on = pc.fill_null(pc.is_in(s, pa.array(SWITCH_ON)), False).to_numpy(zero_copy_only=False)
+    off = pc.fill_null(pc.is_in(s, pa.array(SWITCH_OFF)), False).to_numpy(zero_copy_only=False)
+    return on, missing, ~(on | off | missing)
+
+
+def _time_order(flags: _Flags, codes: np.ndarray, us: np.ndarray) -> np.ndarray:
+    """Reject duplicate/backwards times per vehicle; return kept rows sorted by (vehicle, time)."""
+    acc = np.flatnonzero(~flags.flagged)
+    order = acc[np.argsort(codes[acc], kind="stable")]
+    c, t = codes[order], us[order]
+    prev = pd.Series(t).groupby(c).cummax().groupby(c).shift(1).to_numpy(dtype=float, na_value=np.nan)
+    with np.errstate(invalid="ignore"):
+        dup, back = t == prev, t < prev
+    bad = np.zeros(len(flags.lines), bool)
+
+    def stamp(i):
+        return pd.Timestamp(int(us[i]), unit="us", tz="UTC").isoformat()
+
+    for mask, kind, what in ((dup, "duplicate time", "repeats an earlier row's time"),
+                             (back, "backwards time", "is earlier than a previous row's time")):
+        bad[:] = False
+        bad[order[mask]] = True
+        flags.flag(bad, kind, lambda idx, what=what: [f"time {stamp(i)} {what}" for i in idx])
+    return order[~(dup | back)]
+
+
+def _sample_table(kept, ident, trip_index, ids, us, values, switches, dtc) -> pa.Table:
+    n = len(kept)
+    take = pa.array(kept)
+    cols: dict[str, pa.Array] = {
+        "vehicle_id": pa.array(ident.ids, pa.string()).take(pa.array(ident.codes[kept])),
+        "trip_id": pa.array(ids, pa.string()).take(pa.array(trip_index)),
+        "time": pa.array(us, pa.timestamp("us", tz="UTC")),
+    }
+    for sig in NUMERIC_SIGNALS:
+        cols[sig] = pa.array(values[sig][kept], pa.float64(), from_pandas=True) if sig in values else pa.nulls(n, pa.float64())
+    for sig in SWITCH_SIGNALS:
+        if sig in switches:
+            on, missing = switches[sig]
+            cols[sig] = pa.array(on[kept], pa.bool_(), mask=missing[kept])
+        else:
+            cols[sig] = pa.nulls(n, pa.bool_())
+    cols["dtc"] = dtc.take(take) if dtc is not None else pa.nulls(n, pa.string())
+    return pa.Table.from_arrays([cols[f.name] for f in SAMPLE_SCHEMA], schema=SAMPLE_SCHEMA)
+
+
+def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dict, missing: dict,
+          present: list[str], lines: np.ndarray) -> LogTrip:
+    masks = [np.isnan(values[s]) for s in present if s in values] + [missing[s] for s in present if s in missing]
+    if "dtc" in present:
+        masks.append(samples.column("dtc").is_null().to_numpy(zero_copy_only=False))
+    quality = trip_quality(us, {s: v for s, v in values.items() if s != "odometer"}, masks)
+    odo = values.get("odometer")
+    known = odo[np.isfinite(odo)] if odo is not None else np.array([])
+    signals = [s for s in present if samples.column(s).null_count < samples.num_rows]
+    info = {
+        "trip_id": tid,
+        "vehicle_id": vehicle,
+        "start_time": pd.Timestamp(int(us[0]), unit="us", tz="UTC"),
+        "end_time": pd.Timestamp(int(us[-1]), unit="us", tz="UTC"),
+        "n_samples": int(len(us)),
+        **quality,
+        "signals": ",".join(signals),
+        "odometer_start_km": float(known[0]) if len(known) else float("nan"),
+        "odometer_end_km": float(known[-1]) if len(known) else float("nan"),
+    }
+    return LogTrip(vehicle, tid, samples, info, lines)

@@ -1,0 +1,246 @@
+"""CSV dialects: from a file's bytes to header, metadata and typed columns.
+
+Handles what exports really look like: comma, semicolon or tab delimiters,
+decimal comma, UTF-8 with or without BOM, Latin-1 (degree signs), UTF-16
+with BOM, CRLF, ``#`` comment/metadata lines anywhere, blank or
+delimiter-only lines, trailing blank lines. Every table row keeps the
+1-based line number it came from, so a reject names the line a person sees
+in an editor. Lines are classified with numpy over the raw bytes and parsed
+by pyarrow's CSV reader: no per-line Python loop.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from dataclasses import dataclass
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pacsv
+
+#: Cells read as missing (a missing cell is null, never a reject).
+NULL_TOKENS = ["", "NA", "N/A", "n/a", "NaN", "nan", "null", "NULL", "None", "-", "--"]
+_NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
+_META_RE = re.compile(r"^#+\s*([A-Za-z][\w ]*?)\s*[:=]\s*(.*?)\s*$")
+_BINARY_SNIFF = 8192
+
+
+class FileUnusable(Exception):
+    """The file cannot be used at all; the message is the reason recorded."""
+
+
+@dataclass(frozen=True)
+class LogText:
+    """A decoded log split into lines: metadata, header and data lines."""
+
+    data: bytes  # UTF-8
+    encoding: str
+    delimiter: str
+    header: list[str]
+    metadata: dict[str, str]
+    header_line: int  # 1-based
+    data_lines: np.ndarray  # 1-based line numbers of data lines (blank/comment lines excluded)
+    line_starts: np.ndarray
+    line_stops: np.ndarray  # exclusive, including the newline
+    field_counts: np.ndarray | None  # per data line; None when quotes make counting unsafe
+
+
+@dataclass(frozen=True)
+class ParsedRows:
+    """Columns as parsed plus the line number of every row."""
+
+    columns: dict[int, pa.Array]  # header index -> array (float64 or string)
+    lines: np.ndarray  # 1-based line number of each row
+    structural_rejects: list[tuple[int, str]]  # (line, reason) for rows with a wrong field count
+
+
+def decode(raw: bytes) -> tuple[bytes, str]:
+    """Return UTF-8 bytes and the encoding they were read as."""
+    if raw.startswith(b"\xef\xbb\xbf"):
+        raw, bom = raw[3:], "utf-8-sig"
+    else:
+        bom = None
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        try:
+            return raw.decode("utf-16").encode("utf-8"), "utf-16"
+        except UnicodeDecodeError:
+            raise FileUnusable("starts with a UTF-16 byte-order mark but is not valid UTF-16") from None
+    head = raw[:_BINARY_SNIFF]
+    if b"\x00" in head or _control_fraction(head) > 0.05:
+        raise FileUnusable("binary content (not a text CSV)")
+    try:
+        raw.decode("utf-8")
+        return raw, bom or "utf-8"
+    except UnicodeDecodeError:
+        return raw.decode("latin-1").encode("utf-8"), "latin-1"
+
+
+def _control_fraction(head: bytes) -> float:
+    if not head:
+        return 0.0
+    b = np.frombuffer(head, np.uint8)
+    control = (b < 32) & (b != 9) & (b != 10) & (b != 13)
+    return float(control.mean())
+
+
+def split_lines(raw: bytes) -> LogText:
+    """Decode, find the header, metadata lines and data lines."""
+    if not raw.strip():
+        raise FileUnusable("empty file")
+    data, encoding = decode(raw)
+    buf = np.frombuffer(data, np.uint8)
+    newlines = np.flatnonzero(buf == 10)
+    starts = np.concatenate(([0], newlines + 1))
+    stops = np.concatenate((newlines + 1, [len(buf)]))
+    if starts[-1] == len(buf):  # file ends with a newline: no last empty line
+        starts, stops = starts[:-1], stops[:-1]
+    first = buf[np.minimum(starts, len(buf) - 1)]
+    is_comment = first == ord("#")
+    blankish = np.isin(buf, np.frombuffer(b" \t\r\n", np.uint8))
+    header_idx = _first_header(buf, starts, stops, is_comment, blankish)
+    header_text = data[starts[header_idx]:stops[header_idx]].decode("utf-8").rstrip("\r\n")
+    delimiter = _sniff_delimiter(header_text)
+    header = next(csv.reader([header_text], delimiter=delimiter))
+    header = [h.strip() for h in header]
+    if len(header) < 2:
+        raise FileUnusable(f"header line {header_idx + 1} has a single column ({header_text[:80]!r}); "
+                           "expected comma-, semicolon- or tab-separated columns")
+    content = ~(blankish | (buf == ord(delimiter)))
+    csum = np.concatenate(([0], np.cumsum(content, dtype=np.int64)))
+    has_content = (csum[stops] - csum[starts]) > 0
+    after = np.arange(len(starts)) > header_idx
+    is_data = after & has_content & ~is_comment
+    metadata = _metadata(data, starts, stops, np.flatnonzero(is_comment))
+    quoted = b'"' in data[stops[header_idx]:] if header_idx + 1 < len(starts) else False
+    field_counts = None
+    if not quoted:
+        dsum = np.concatenate(([0], np.cumsum(buf == ord(delimiter), dtype=np.int64)))
+        field_counts = (dsum[stops] - dsum[starts] + 1)[is_data]
+    return LogText(
+        data=data, encoding=encoding, delimiter=delimiter, header=header, metadata=metadata,
+        header_line=int(header_idx) + 1, data_lines=np.flatnonzero(is_data) + 1,
+        line_starts=starts, line_stops=stops, field_counts=field_counts,
+    )
+
+
+def _first_header(buf, starts, stops, is_comment, blankish) -> int:
+    csum = np.concatenate(([0], np.cumsum(~blankish, dtype=np.int64)))
+    candidates = np.flatnonzero(((csum[stops] - csum[starts]) > 0) & ~is_comment)
+    if len(candidates) == 0:
+        raise FileUnusable("no header line (only blank or comment lines)")
+    return int(candidates[0])
+
+
+def _sniff_delimiter(header: str) -> str:
+    counts = {d: header.count(d) for d in (";", ",", "\t")}
+    best = max(counts, key=lambda d: (counts[d], d == ","))
+    return best if counts[best] else ","
+
+
+def _metadata(data: bytes, starts, stops, comment_idx) -> dict[str, str]:
+    """``# key: value`` lines (keys lower-cased); the first occurrence of a key wins."""
+    out: dict[str, str] = {}
+    for i in comment_idx[:200]:  # metadata sits in a file's head; bound the scan
+        m = _META_RE.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\r\n"))
+        if m:
+            out.setdefault(m.group(1).strip().lower(), m.group(2))
+    return out
+
+
+def parse_rows(log: LogText, numeric: list[int], text: list[int]) -> ParsedRows:
+    """Parse the wanted columns; numeric ones as float64 where every cell allows it.
+
+    Numeric columns that hold a non-number anywhere come back as strings (the
+    caller converts them cell by cell and rejects the rows that fail), so one
+    bad cell costs one row, not the file.
+    """
+    n_fields = len(log.header)
+    lines = log.data_lines
+    rejects: list[tuple[int, str]] = []
+    if log.field_counts is not None:
+        ok = log.field_counts == n_fields
+        for line, count in zip(lines[~ok], log.field_counts[~ok]):
+            rejects.append((int(line), f"{count} fields, the header has {n_fields}"))
+        lines = lines[ok]
+    body = _select_lines(log, lines)
+    wanted = sorted(set(numeric) | set(text))
+    if len(lines) == 0 or not wanted:
+        return ParsedRows({i: pa.array([], pa.string()) for i in wanted}, lines[:0], rejects)
+    decimal_points = ["."] if log.delimiter == "," else [".", ","]
+    for dp in decimal_points:
+        types = {f"c{i}": (pa.float64() if i in numeric else pa.string()) for i in wanted}
+        try:
+            table, skipped = _read(body, log, wanted, types, dp)
+            break
+        except pa.ArrowInvalid:
+            continue
+    else:
+        table, skipped = _read(body, log, wanted, {f"c{i}": pa.string() for i in wanted}, ".")
+    if skipped:
+        keep = np.ones(len(lines), bool)
+        for number, reason in skipped:
+            keep[number - 1] = False
+            rejects.append((int(lines[number - 1]), reason))
+        lines = lines[keep]
+    columns = {i: table.column(f"c{i}").combine_chunks() for i in wanted}
+    return ParsedRows(columns, lines, rejects)
+
+
+def _select_lines(log: LogText, lines: np.ndarray) -> bytes:
+    """The bytes of the given lines only (a slice when they are contiguous)."""
+    if len(lines) == 0:
+        return b""
+    idx = lines - 1
+    if idx[-1] - idx[0] + 1 == len(idx):
+        return log.data[log.line_starts[idx[0]]:log.line_stops[idx[-1]]]
+    keep = np.zeros(len(log.line_starts), bool)
+    keep[idx] = True
+    byte_keep = np.repeat(keep, log.line_stops - log.line_starts)
+    body = np.frombuffer(log.data, np.uint8)[byte_keep].tobytes()
+    return body
+
+
+def _read(body: bytes, log: LogText, wanted: list[int], types: dict, decimal_point: str):
+    skipped: list[tuple[int, str]] = []
+    n_fields = len(log.header)
+
+    def on_invalid(row) -> str:
+        skipped.append((row.number, f"{row.actual_columns} fields, the header has {row.expected_columns}"))
+        return "skip"
+
+    quoted = log.field_counts is None
+    if not body.endswith(b"\n"):
+        body += b"\n"
+    table = pacsv.read_csv(
+        io.BytesIO(body),
+        read_options=pacsv.ReadOptions(column_names=[f"c{i}" for i in range(n_fields)], use_threads=not quoted,
+                                       block_size=1 << 24),
+        parse_options=pacsv.ParseOptions(delimiter=log.delimiter, invalid_row_handler=on_invalid if quoted else None),
+        convert_options=pacsv.ConvertOptions(include_columns=[f"c{i}" for i in wanted], column_types=types,
+                                             null_values=NULL_TOKENS, strings_can_be_null=True,
+                                             quoted_strings_can_be_null=True, decimal_point=decimal_point),
+    )
+    return table, skipped
+
+
+def to_float(col: pa.Array, decimal_comma: bool) -> tuple[np.ndarray, np.ndarray]:
+    """(values with NaN for missing or bad cells, mask of cells that are not numbers)."""
+    if pa.types.is_floating(col.type):
+        return col.to_numpy(zero_copy_only=False).astype(np.float64, copy=False), np.zeros(len(col), bool)
+    s = pc.utf8_trim_whitespace(col)
+    if decimal_comma:
+        s = pc.replace_substring(s, ",", ".")
+    ok = pc.match_substring_regex(s, _NUMBER_RE)
+    good = pc.if_else(ok, s, pa.scalar(None, pa.string()))
+    values = pc.cast(good, pa.float64()).to_numpy(zero_copy_only=False)
+    bad = pc.fill_null(pc.invert(ok), False).to_numpy(zero_copy_only=False)
+    return values, bad
+
+
+def clean_text(col: pa.Array) -> pa.Array:
+    """Trimmed strings with empty cells as null."""
+    s = pc.utf8_trim_whitespace(col.cast(pa.string()))
+    return pc.if_else(pc.equal(s, ""), pa.scalar(None, pa.string()), s)
