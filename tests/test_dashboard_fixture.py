@@ -34,7 +34,7 @@ def build_store(root, n_vehicles: int = 12, days: int = 20, trips_per_day: float
         "platform": [PLATFORMS[i % len(PLATFORMS)] for i in range(n_vehicles)],
         "wheelbase_m": 3.0, "track_front_m": 1.6, "track_rear_m": 1.55, "steering_ratio": 16.0,
         "tyre_radius_m": 0.33, "understeer_gradient_deg_per_g": 2.0,
-        "depot": [DEPOTS[i % len(DEPOTS)] if i % 11 != 10 else None for i in range(n_vehicles)],
+        "depot": [DEPOTS[(i // 2) % len(DEPOTS)] if i % 11 != 10 else None for i in range(n_vehicles)],
     })
     trips = _trips(rng, ids, days, trips_per_day)
     features = _features(rng, trips, vehicles)

@@ -64,8 +64,7 @@ if coverage is not None:
         st.info("No trips in the store yet.")
     else:
         silent_for = (newest - coverage["last_trip"]).dt.days
-        quiet = coverage.loc[coverage["last_trip"].isna() | (silent_for >= quiet_days)].assign(
-            days_quiet=silent_for)
+        quiet = coverage.assign(days_quiet=silent_for).loc[coverage["last_trip"].isna() | (silent_for >= quiet_days)]
         st.caption(f"Measured from the newest log in the store, {newest:%Y-%m-%d %H:%M} UTC "
                    f"({(pd.Timestamp.now(tz='UTC') - newest).days} days before now).")
         if quiet.empty:
