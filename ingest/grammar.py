@@ -147,8 +147,8 @@ def signal_of(name_words: str) -> str | None:
     if not name_words:
         return None
     positions = [pos for pos, rx in _POSITION_RES.items() if rx.search(name_words)]
-    if len(positions) == 1 and _WHEEL_RE.search(name_words):
-        return f"wheel_speed_{positions[0]}"
+    if len(positions) == 1 and (_WHEEL_RE.search(name_words) or name_words in _POSITIONS[positions[0]]):
+        return f"wheel_speed_{positions[0]}"  # a bare position ("FL [km/h]") names a wheel speed
     for sig, rx in _COMPILED:
         if rx.match(name_words):
             return sig
@@ -186,7 +186,7 @@ def unit_factor(signal: str, unit: str | None) -> tuple[float | None, str | None
     if unit_quantity == "voltage" and quantity == "acceleration":
         return None, None
     if unit_quantity != quantity:
-        return None, f"unit {unit!r} is a {unit_quantity.replace('_', ' ')}, not a {quantity.replace('_', ' ')} ({signal})"
+        return None, f"unit {unit!r} is for {unit_quantity.replace('_', ' ')}, {signal} needs {quantity.replace('_', ' ')}"
     return factor, None
 
 

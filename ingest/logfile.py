@@ -131,7 +131,7 @@ def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> Non
     result.time_basis = tr.basis
     for reason, mask in tr.reasons.items():
         flags.flag(mask, "bad time", _quoting(tcol.header, time_text, reason))
-    flags.flag(tr.bad, "bad time", _quoting(tcol.header, time_text, "time is not readable"))
+    flags.flag(tr.bad, "bad time", _quoting(tcol.header, time_text, "is not a readable time"))
 
     values: dict[str, np.ndarray] = {}
     for sig, col in cols.items():

@@ -75,12 +75,12 @@ def parse_time(col: pa.Array, unit: str | None, fmt: str, timezone: str | None,
     else:
         offset_us, basis = _relative_start(start_meta, file_name)
     us = np.round(np.nan_to_num(seconds) * 1e6).astype(np.int64) + offset_us
-    reasons = {"time is not a number": not_number}
+    reasons = {"is not a number": not_number}
     if epoch:
-        reasons["time outside 2000..2100"] = np.isfinite(seconds) & ((seconds < 946684800) | (seconds > 4102444800))
+        reasons["is outside the years 2000..2100"] = np.isfinite(seconds) & ((seconds < 946684800) | (seconds > 4102444800))
     else:
-        reasons["relative time is negative"] = np.isfinite(seconds) & (seconds < 0)
-    reasons = {"time is missing": missing, **reasons}
+        reasons["is a negative relative time"] = np.isfinite(seconds) & (seconds < 0)
+    reasons = {"is missing": missing, **reasons}
     bad = np.logical_or.reduce(list(reasons.values())) | ~np.isfinite(seconds)
     return TimeResult(us, bad, reasons, basis)
 
@@ -112,9 +112,9 @@ def _iso(text: pa.Array, missing: np.ndarray, timezone: str | None) -> TimeResul
             us, failed_naive = _localise(s, naive, us, timezone)
             failed |= failed_naive
     reasons = {
-        "time is missing": missing,
-        "time is not an ISO 8601 timestamp": unparsed | failed,
-        "timestamp has no UTC offset (add Z/+hh:mm, or a profile/# timezone)": no_zone,
+        "is missing": missing,
+        "is not an ISO 8601 timestamp": unparsed | failed,
+        "has no UTC offset (add Z or +hh:mm, or give a profile [time] timezone or a # timezone: line)": no_zone,
     }
     bad = np.logical_or.reduce(list(reasons.values()))
     return TimeResult(us, bad, reasons, "iso")

@@ -1,0 +1,168 @@
+"""CSV dialects, time bases, identity, profiles and row validation, from small fixtures."""
+
+import math
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from ingest.logfile import read_log
+from ingest.profile import Profile, load_profile
+from tracktrue.errors import UserError
+
+FIXTURES = Path(__file__).parent / "fixtures" / "ingest"
+
+
+def _read(name: str, profile: Profile | None = None, gap_s: float = 300.0):
+    path = FIXTURES / name
+    return read_log(path.read_bytes(), path.name, path.parent.name, profile or Profile(), gap_s)
+
+
+def _frame(result) -> pd.DataFrame:
+    return pd.concat([t.samples.to_pandas() for t in result.trips], ignore_index=True)
+
+
+def test_comma_file_with_every_canonical_signal_is_read_in_si():
+    r = _read("comma_iso_full.csv")
+    assert r.unusable is None and r.rejects == [] and len(r.trips) == 1
+    df = _frame(r)
+    assert df.vehicle_id.unique().tolist() == ["BUS-04"]
+    assert df.wheel_speed_fl.iloc[0] == pytest.approx(10.0)  # 36 km/h
+    assert df.accel_long.iloc[3] == pytest.approx(-0.1 * 9.80665)
+    assert df.yaw_rate.iloc[4] == pytest.approx(4 * math.pi / 180)
+    assert df.brake.tolist() == [False, False, True, True, False]
+    assert df.lamp_abs.tolist() == [False, False, False, False, True]
+    assert df.dtc.iloc[3] == "C0035" and pd.isna(df.dtc.iloc[0])
+    assert r.trips[0].info["odometer_end_km"] == pytest.approx(12000.1)
+    assert "Cabin temp" in r.warnings[0]
+
+
+def test_offsets_are_converted_to_utc():
+    # row 4 is written 08:14:00.300+01:00, i.e. 07:14:00.300Z
+    df = _frame(_read("comma_iso_full.csv"))
+    assert df.time.iloc[3] == pd.Timestamp("2026-03-02T07:14:00.300Z")
+    assert str(df.time.dtype) == "datetime64[us, UTC]"
+
+
+def test_latin1_semicolon_decimal_comma_comment_lines_and_crlf():
+    r = _read("semicolon_decimal_comma_latin1.csv")
+    assert r.unusable is None and r.rejects == []
+    df = _frame(r)
+    assert len(df) == 3  # a comment line between rows, a delimiter-only line and trailing blank lines are not rows
+    assert df.vehicle_id.unique().tolist() == ["TAXI-31"]
+    assert df.steering_angle.tolist() == pytest.approx([math.pi / 2, -math.pi / 2, math.pi / 4])  # [°]
+    assert df.yaw_rate.iloc[0] == pytest.approx(1.5 * math.pi / 180)  # [°/s] in Latin-1
+    assert df.accel_lat.iloc[0] == pytest.approx(0.25)  # [m/s²]
+    # relative seconds from '# start: 2026-03-02T08:14:00+01:00'
+    assert df.time.iloc[2] == pd.Timestamp("2026-03-02T07:14:00.400Z")
+    assert r.trips[0].lines.tolist() == [4, 5, 7]
+
+
+def test_bom_crlf_epoch_milliseconds_and_vin_column():
+    r = _read("bom_crlf_epoch_ms.csv")
+    df = _frame(r)
+    assert r.unusable is None and len(df) == 3 and r.warnings == []
+    assert df.time.iloc[1] == pd.Timestamp(1772435640020, unit="ms", tz="UTC")
+    assert df.vehicle_id.iloc[0] == "1M8GDM9AXKP042788"  # no ID column, no '# vehicle:': the VIN column
+    assert df.wheel_speed_fl.iloc[0] == pytest.approx(20.0)  # 72 kph
+    assert df.accel_lat.iloc[0] == pytest.approx(3.2808 * 0.3048)
+
+
+def test_tab_file_with_epoch_seconds_warns_about_a_bad_vin():
+    r = _read("tab_epoch_s_bad_vin.txt")
+    assert r.trips[0].vehicle_id == "1M8GDM9A1KP042788"
+    assert any("check digit" in w for w in r.warnings)
+    assert _frame(r).time.iloc[1] == pd.Timestamp(1772435640.5, unit="s", tz="UTC")
+
+
+def test_relative_time_takes_its_start_from_the_file_name_and_identity_from_the_folder():
+    r = _read("VAN-17/trip_20260302T071400Z.csv")
+    df = _frame(r)
+    assert df.vehicle_id.unique().tolist() == ["VAN-17"]
+    assert df.time.iloc[1] == pd.Timestamp("2026-03-02T07:14:00.5Z")
+    assert df.wheel_speed_rr.iloc[0] == pytest.approx(10 * 0.44704)  # mph, NIST SP 811
+
+
+def test_relative_time_without_any_start_makes_the_file_unusable():
+    csv = b"t [s],FL [km/h]\n0,10\n1,10\n"
+    r = read_log(csv, "nostart.csv", "V", Profile(), 300)
+    assert r.unusable and "no start" in r.unusable and r.n_rejected == 2
+
+
+def test_naive_iso_times_are_rejected_unless_a_timezone_is_given():
+    csv = b"# vehicle: Z\ntime,FL [km/h]\n2026-03-02T08:00:00,10\n2026-03-02T08:00:01,10\n"
+    r = read_log(csv, "naive.csv", "V", Profile(), 300)
+    assert len(r.rejects) == 2 and "no UTC offset" in r.rejects[0][1]
+    zoned = read_log(b"# timezone: Europe/Vienna\n" + csv, "naive.csv", "V", Profile(), 300)
+    # 2 March is winter time in Vienna: UTC+1 (IANA tz database)
+    assert _frame(zoned).time.iloc[0] == pd.Timestamp("2026-03-02T07:00:00Z")
+
+
+def test_a_log_with_two_ignition_cycles_becomes_two_trips():
+    r = _read("two_ignition_cycles.csv")
+    assert [t.info["n_samples"] for t in r.trips] == [3, 2]
+    assert len({t.trip_id for t in r.trips}) == 2
+    assert len(_read("two_ignition_cycles.csv", gap_s=2000).trips) == 1
+
+
+def test_bad_rows_are_rejected_with_line_and_reason_and_missing_cells_are_kept():
+    r = _read("bad_rows.csv")
+    reasons = dict(r.rejects)
+    assert "'abc' is not a number" in reasons[4]
+    assert "outside the physical range" in reasons[5] and "outside the physical range" in reasons[13]
+    assert "on/off" in reasons[6]
+    assert "earlier than a previous" in reasons[8]
+    assert "fields" in reasons[10]
+    assert "ISO 8601" in reasons[11]
+    assert "no UTC offset" in reasons[12]
+    assert "repeats an earlier row's time" in reasons[15]
+    kept = r.trips[0].lines.tolist()
+    assert kept == [3, 7, 9, 14]  # line 9 has an empty yaw cell: kept, as a null
+    assert math.isnan(_frame(r).yaw_rate.iloc[2])
+    assert r.n_rows == len(kept) + len(r.rejects)
+
+
+@pytest.mark.parametrize("name,word", [
+    ("empty.csv", "empty"), ("binary.csv", "binary"), ("no_time.csv", "no time column"),
+    ("no_wheel_speed.csv", "no usable wheel speed"),
+])
+def test_unusable_files_say_why(name, word):
+    assert word in _read(name).unusable
+
+
+def test_column_errors_leave_the_other_columns_in_use():
+    r = _read("no_units.csv")
+    assert len(r.column_errors) == 3 and r.unusable is None
+    assert _frame(r).wheel_speed_fr.tolist() == pytest.approx([10.0, 10.0])
+
+
+def test_profile_maps_voltage_accelerometer_inverts_and_scales():
+    profile = load_profile(FIXTURES / "analog_profile.toml")
+    r = _read("analog.csv", profile)
+    df = _frame(r)
+    # a = (V - zero_v) / v_per_g g: 3.3 V -> +1 g, 1.7 V -> -1 g with 2.5 V and 0.8 V/g
+    assert df.accel_long.tolist() == pytest.approx([0.0, 9.80665, -9.80665])
+    assert df.yaw_rate.tolist() == pytest.approx([-10 * math.pi / 180, 10 * math.pi / 180, 0.0])
+    assert df.wheel_speed_fl.tolist() == pytest.approx([10.0, 20.0, 0.0])  # 0.01 km/h counts
+    # the other voltage column has no calibration in the profile: a column error, not a guess
+    assert any("Lat accel [V]" in e for e in r.column_errors)
+
+
+@pytest.mark.parametrize("text,word", [
+    ('[columns."x"]\nsignal = "warp_drive"\n', "not a canonical signal"),
+    ('[columns."x"]\nsignal = "accel_long"\nunit = "V"\nzero_v = 2.5\n', "zero_v and v_per_g"),
+    ('[columns."x"]\nsignal = "yaw_rate"\nunit = "km/h"\n', "needs angular rate"),
+    ('[time]\nformat = "sundial"\n', "format"),
+    ('[columns."x"]\nsignal = "yaw_rate"\ninvert = "yes"\n', "true or false"),
+    ("this is = not toml [", "not valid TOML"),
+])
+def test_bad_profiles_are_user_errors_naming_the_problem(tmp_path, text, word):
+    path = tmp_path / "p.toml"
+    path.write_text(text)
+    with pytest.raises(UserError, match=word):
+        load_profile(path)
+
+
+def test_the_example_profile_is_valid():
+    profile = load_profile(Path(__file__).parents[1] / "ingest" / "profile_example.toml")
+    assert profile.columns["ain3"].v_per_g == 0.8
