@@ -120,6 +120,11 @@ def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> Non
     numeric = [c.index for c in cols.values() if c.signal in BOUNDS_SI]
     text = [c.index for c in cols.values() if c.signal not in BOUNDS_SI]
     parsed = parse_rows(log, numeric, text)
+    if parsed.structural_rejects:
+        result.reject_kinds["field count"] += len(parsed.structural_rejects)
+    result.rejects = parsed.structural_rejects
+    if len(parsed.lines) == 0:
+        return
     flags = _Flags(parsed.lines)
     decimal_comma = log.delimiter != ","
     n = len(parsed.lines)
@@ -163,9 +168,7 @@ def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> Non
 
     kept = _time_order(flags, ident.codes, tr.us)
     result.rejects = sorted(parsed.structural_rejects + flags.rejects)
-    result.reject_kinds = flags.kinds
-    if parsed.structural_rejects:
-        result.reject_kinds["field count"] += len(parsed.structural_rejects)
+    result.reject_kinds.update(flags.kinds)
     if len(kept) == 0:
         return
     codes, us = ident.codes[kept], tr.us[kept]

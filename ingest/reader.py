@@ -91,6 +91,8 @@ def split_lines(raw: bytes) -> LogText:
     if not raw.strip():
         raise FileUnusable("empty file")
     data, encoding = decode(raw)
+    if b"\r" in data:  # CRLF, or a lone CR (old Mac line ends): both end a line
+        data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     buf = np.frombuffer(data, np.uint8)
     newlines = np.flatnonzero(buf == 10)
     starts = np.concatenate(([0], newlines + 1))
@@ -103,7 +105,10 @@ def split_lines(raw: bytes) -> LogText:
     header_idx = _first_header(buf, starts, stops, is_comment, blankish)
     header_text = data[starts[header_idx]:stops[header_idx]].decode("utf-8").rstrip("\r\n")
     delimiter = _sniff_delimiter(header_text)
-    header = next(csv.reader([header_text], delimiter=delimiter))
+    try:
+        header = next(csv.reader([header_text], delimiter=delimiter))
+    except csv.Error as exc:
+        raise FileUnusable(f"header line {header_idx + 1} cannot be split into columns: {exc}") from None
     header = [h.strip() for h in header]
     if len(header) < 2:
         raise FileUnusable(f"header line {header_idx + 1} has a single column ({header_text[:80]!r}); "
