@@ -1,0 +1,97 @@
+"""From abnormal features to a suspected component, its evidence and an inspection suggestion.
+
+Isolation follows a residual table (Isermann, *Fault-Diagnosis Systems*, 2006):
+each feature compares two sources, so a fault shows in every residual that
+involves its component and nowhere else. The wheel features involve only the
+wheels, while the yaw-offset, steering-centre and lateral/longitudinal
+residuals compare a sensor *with the wheels*. So:
+
+1. A wheel whose jitter or dropouts are abnormal → that wheel's sensor / tone
+   ring (signal faults show as jitter and dropouts; common practice).
+2. Else a wheel whose speed ratio is abnormal → that wheel's tyre: a steady
+   ratio error without jitter or dropouts is a rolling-radius change
+   (DESIGN.md, "Tyre versus sensor").
+3. Else the non-wheel sources, where a "versus wheels" residual counts only
+   when no wheel is abnormal (otherwise the wheel explains it), and the
+   steering-versus-yaw residual goes to whichever of the two the other
+   residuals implicate.
+"""
+
+from __future__ import annotations
+
+from tracktrue.schema import POSITIONS
+
+SAFETY_NOTE = (
+    "This prioritises inspections; it does not clear a vehicle. Follow the manufacturer's service "
+    "procedure; a replaced sensor may need calibration or a relearn."
+)
+
+SUGGESTIONS: dict[str, str] = {
+    "wheel_sensor": "Inspect the {where} tone ring and wheel bearing for damage or play, check the sensor air gap, "
+    "wiring and connector, then scope the sensor signal at speed.",
+    "tyre": "Check the {where} tyre first: pressures, tyre sizes and tread against the other wheels "
+    "(a steady ratio error without jitter or dropouts is a tyre, not a sensor).",
+    "yaw_sensor": "Check the yaw-rate sensor mounting and connector, read its stored codes, and verify its zero "
+    "and gain at standstill and in a steady turn; recalibrate per the manufacturer's procedure.",
+    "steering_angle_sensor": "Check the wheel alignment and the steering-wheel centre, then recalibrate the "
+    "steering angle sensor per the manufacturer's procedure.",
+    "accel_long_sensor": "Check the longitudinal accelerometer's mounting and level, read its value at rest on "
+    "level ground, and recalibrate or replace per the manufacturer's procedure.",
+    "accel_lat_sensor": "Check the lateral accelerometer's mounting and level (loads and suspension height bias it), "
+    "read its value at rest on level ground, and recalibrate per the manufacturer's procedure.",
+    "none": "No component stands out; keep watching.",
+}
+
+POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
+
+
+def suggestion_for(component: str) -> str:
+    """Plain-language next step for a component, always ending with the safety note."""
+    family, _, pos = component.rpartition("_") if component.startswith(("wheel_sensor_", "tyre_")) else (component, "", "")
+    text = SUGGESTIONS[family].format(where=POSITION_WORDS.get(pos, ""))
+    return f"{text} {SAFETY_NOTE}"
+
+
+def choose_component(evidence: dict[str, float], signal_z: float, attribution_z: float) -> tuple[str, str | None]:
+    """Suspected component and the evidence key that decided it.
+
+    ``evidence`` maps keys ``wheel_signal_<pos>``, ``wheel_ratio_<pos>``,
+    ``yaw``, ``yaw_vs_wheels``, ``steering_vs_wheels``, ``steering_vs_yaw``,
+    ``accel_long``, ``accel_long_vs_wheels``, ``accel_lat``,
+    ``accel_lat_vs_wheels`` to non-negative strengths (|z| or CUSUM/h);
+    missing keys count as 0.
+    """
+    e = lambda key: float(evidence.get(key, 0.0) or 0.0)  # noqa: E731
+    signal = {p: e(f"wheel_signal_{p}") for p in POSITIONS}
+    ratio = {p: e(f"wheel_ratio_{p}") for p in POSITIONS}
+    best_signal = max(signal, key=signal.get)
+    if signal[best_signal] >= signal_z:
+        return f"wheel_sensor_{best_signal}", f"wheel_signal_{best_signal}"
+    best_ratio = max(ratio, key=ratio.get)
+    wheels_abnormal = ratio[best_ratio] >= attribution_z
+    vs_wheels = 0.0 if wheels_abnormal else 1.0
+    yaw_rest, yaw_wheels = e("yaw"), vs_wheels * e("yaw_vs_wheels")
+    yaw_own = max(yaw_rest, yaw_wheels)
+    steer_own = vs_wheels * e("steering_vs_wheels")
+    # 2-out-of-3 vote: yaw-versus-steering blames the yaw sensor only when the
+    # yaw sensor also disagrees with an independent source (rest or wheels).
+    shared = e("steering_vs_yaw")
+    yaw_gets_shared = yaw_own >= attribution_z
+    candidates = {
+        "yaw_sensor": (max(yaw_own, shared if yaw_gets_shared else 0.0),
+                       "yaw" if yaw_rest >= max(yaw_wheels, shared * yaw_gets_shared) else
+                       "yaw_vs_wheels" if yaw_wheels >= shared * yaw_gets_shared else "steering_vs_yaw"),
+        "steering_angle_sensor": (max(steer_own, 0.0 if yaw_gets_shared else shared),
+                                  "steering_vs_wheels" if steer_own >= shared * (not yaw_gets_shared) else "steering_vs_yaw"),
+        "accel_long_sensor": (max(e("accel_long"), vs_wheels * e("accel_long_vs_wheels")),
+                              "accel_long" if e("accel_long") >= vs_wheels * e("accel_long_vs_wheels") else "accel_long_vs_wheels"),
+        "accel_lat_sensor": (max(e("accel_lat"), vs_wheels * e("accel_lat_vs_wheels")),
+                             "accel_lat" if e("accel_lat") >= vs_wheels * e("accel_lat_vs_wheels") else "accel_lat_vs_wheels"),
+    }
+    if wheels_abnormal:
+        candidates[f"tyre_{best_ratio}"] = (ratio[best_ratio], f"wheel_ratio_{best_ratio}")
+    component = max(candidates, key=lambda c: candidates[c][0])
+    strength, key = candidates[component]
+    if strength < attribution_z:
+        return "none", None
+    return component, key

@@ -1,0 +1,287 @@
+"""How good is the ranking? Ground-truth evaluation and a lamp backtest, always beside baselines.
+
+Methods compared in one run, on the same trips:
+
+* ``tracktrue`` — the FleetScorer as published.
+* ``lamp_only`` — wait for the lamp: flags nothing before it (lead time 0);
+  its precision at k is that of an arbitrary order of the unlit vehicles.
+* ``single_feature`` — each raw feature against the fleet's own 0.5 % / 99.5 %
+  trip quantiles; a vehicle alerts when at least half of its last ten trips
+  break some threshold; component from the feature broken most often.
+* ``raw_forest`` — the same isolation forest on un-normalised features
+  (one forest, no peer groups, no drift detector); alerts at a vehicle
+  score ``watch_score_z`` fleet spreads above the median.
+
+Definitions (truth.csv: vehicle_id, fault, component, onset_date, lamp_date):
+positives at the as-of date are sensor faults (component not a tyre) with
+onset ≤ as-of and no lamp yet; k = their number; the ranking excludes
+vehicles whose lamp is lit. Lead time = lamp date − the first day of the alert
+run still going on the last trip before the lamp (0 when none). Lead fraction
+= lead / (lamp − onset), capped at 1. False alarms = alert runs started on
+vehicles without any truth row, per 30 healthy vehicle-days, in % of vehicles.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import logging
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from models.feature_set import evidence_key
+from models.runner import ScoredFleet, score_fleet
+from models.scorer import FleetScorer
+from tracktrue.errors import UserError
+from tracktrue.store import Store
+
+log = logging.getLogger(__name__)
+
+TRUTH_COLUMNS = ("vehicle_id", "fault", "component", "onset_date", "lamp_date")
+METHODS = ("tracktrue", "lamp_only", "single_feature", "raw_forest")
+ROLLING_TRIPS = 10
+
+
+@dataclass
+class MethodResult:
+    """Per vehicle: order (1 = most urgent), flagged, component; per trip: alert."""
+
+    vehicles: pd.DataFrame  # vehicle_id, order, flagged, component
+    trips: pd.DataFrame  # vehicle_id, start_time, alert
+
+
+@dataclass
+class EvaluationReport:
+    as_of: dt.date
+    metrics: dict[str, dict[str, float]]
+    early: "EvaluationReport | None" = None
+    backtest: pd.DataFrame | None = None
+    notes: list[str] = field(default_factory=list)
+
+    def describe(self) -> str:
+        lines = []
+        if self.metrics:
+            names = list(next(iter(self.metrics.values())).keys())
+            table = pd.DataFrame(self.metrics).reindex(names)
+            lines.append(f"evaluation as of {self.as_of} (ground truth)")
+            lines.append(table.map(_cell).to_string())
+        if self.backtest is not None:
+            lines.append(f"backtest as of {self.as_of}: lamp events in the logs (no truth file)")
+            if self.backtest.empty:
+                lines.append("  no lamp events found")
+            else:
+                lines.append(self.backtest.to_string(index=False))
+                lines.append(f"  median days flagged before the lamp: {self.backtest['days_earlier'].median():.1f}")
+        lines += [f"note: {n}" for n in self.notes]
+        if self.early is not None:
+            lines += ["", self.early.describe()]
+        return "\n".join(lines)
+
+
+def _cell(x) -> str:
+    if x is None or (isinstance(x, float) and not np.isfinite(x)):
+        return "n/a"
+    return f"{x:.3f}" if isinstance(x, float) else str(x)
+
+
+def read_truth(path: Path) -> pd.DataFrame:
+    """truth.csv with dates parsed; a clear UserError naming file, row and problem."""
+    try:
+        df = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except FileNotFoundError:
+        raise UserError(f"{path}: truth file not found") from None
+    except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+        raise UserError(f"{path}: not a readable CSV ({exc})") from None
+    missing = [c for c in TRUTH_COLUMNS if c not in df.columns]
+    if missing:
+        raise UserError(f"{path}: missing column(s) {', '.join(missing)} (need {', '.join(TRUTH_COLUMNS)})")
+    for col in ("onset_date", "lamp_date"):
+        parsed = pd.to_datetime(df[col].str.strip().replace("", None), errors="coerce")
+        bad = parsed.isna() & (df[col].str.strip() != "")
+        if bad.any():
+            row = int(np.flatnonzero(bad.to_numpy())[0]) + 2  # header is line 1
+            raise UserError(f"{path}, line {row}: {col} {df[col].iloc[row - 2]!r} is not a date (YYYY-MM-DD)")
+        if col == "onset_date" and parsed.isna().any():
+            row = int(np.flatnonzero(parsed.isna().to_numpy())[0]) + 2
+            raise UserError(f"{path}, line {row}: onset_date is empty")
+        df[col] = parsed.dt.date
+    return df
+
+
+# --------------------------------------------------------------- methods
+def _tracktrue_result(fleet: ScoredFleet) -> MethodResult:
+    st = fleet.status
+    veh = pd.DataFrame({"vehicle_id": st["vehicle_id"], "order": st["rank"],
+                        "flagged": st["status"].eq("inspect").to_numpy(), "component": st["suspected_component"]})
+    per = fleet.drift.attrs["per_trip"]
+    return MethodResult(veh, per[["vehicle_id", "start_time", "alert"]])
+
+
+def _rolling_alert(trips: pd.DataFrame, hit: np.ndarray) -> pd.Series:
+    s = pd.Series(hit.astype(float), index=trips.index)
+    frac = s.groupby(trips["vehicle_id"].to_numpy()).transform(lambda x: x.rolling(ROLLING_TRIPS, min_periods=3).mean())
+    return frac
+
+
+def _component_of(feature: str) -> str:
+    key = evidence_key(feature)
+    pos = key.rsplit("_", 1)[-1] if key.startswith("wheel_") else None
+    if key.startswith("wheel_signal_"):
+        return f"wheel_sensor_{pos}"
+    if key.startswith("wheel_ratio_"):
+        return f"tyre_{pos}"
+    base = key.split("_vs_")[0]
+    return {"yaw": "yaw_sensor", "steering": "steering_angle_sensor", "accel_long": "accel_long_sensor",
+            "accel_lat": "accel_lat_sensor"}.get(base, "none")
+
+
+def _single_feature_result(fleet: ScoredFleet) -> MethodResult:
+    tf = fleet.trip_features.sort_values(["vehicle_id", "start_time"]).reset_index(drop=True)
+    feats = fleet.scorer.features_
+    x = tf[feats].astype(float)
+    lo, hi = x.quantile(0.005), x.quantile(0.995)
+    broken = (x.lt(lo) | x.gt(hi))
+    frac = _rolling_alert(tf, broken.any(axis=1).to_numpy())
+    trips = pd.DataFrame({"vehicle_id": tf["vehicle_id"], "start_time": tf["start_time"], "alert": frac >= 0.5})
+    recent = tf.assign(**{f: broken[f] for f in feats}).groupby("vehicle_id").tail(ROLLING_TRIPS)
+    counts = recent.groupby("vehicle_id")[feats].sum()
+    last_frac = frac.groupby(tf["vehicle_id"]).last()
+    comp = counts.idxmax(axis=1).map(_component_of).where(counts.max(axis=1) > 0, "none")
+    veh = pd.DataFrame({"vehicle_id": last_frac.index, "frac": last_frac.to_numpy()})
+    veh["order"] = veh["frac"].rank(ascending=False, method="first")
+    veh["flagged"] = veh["frac"] >= 0.5
+    veh["component"] = veh["vehicle_id"].map(comp).fillna("none")
+    return MethodResult(veh.drop(columns="frac"), trips)
+
+
+def _raw_forest_result(fleet: ScoredFleet) -> MethodResult:
+    base = FleetScorer(normalise_features=False, random_state=fleet.scorer.random_state).fit(fleet.trip_features)
+    ts = base.score_trips(fleet.trip_features)
+    z = ts.groupby("vehicle_id")["score"].transform(
+        lambda s: s.rolling(ROLLING_TRIPS, min_periods=3).median())
+    z = (z - base.score_center_) / base.score_scale_
+    trips = pd.DataFrame({"vehicle_id": ts["vehicle_id"], "start_time": ts["start_time"],
+                          "alert": (z >= base.watch_score_z).to_numpy()})
+    last = z.groupby(ts["vehicle_id"]).last()
+    top = ts.groupby("vehicle_id").tail(ROLLING_TRIPS).groupby("vehicle_id")["top_feature"].agg(
+        lambda s: s.mode().iloc[0] if len(s.dropna()) else None)
+    veh = pd.DataFrame({"vehicle_id": last.index, "z": last.to_numpy()})
+    veh["order"] = veh["z"].rank(ascending=False, method="first")
+    veh["flagged"] = veh["z"] >= base.watch_score_z
+    veh["component"] = veh["vehicle_id"].map(top).map(lambda f: _component_of(f) if isinstance(f, str) else "none")
+    return MethodResult(veh.drop(columns="z"), trips)
+
+
+# --------------------------------------------------------------- metrics
+def _run_start_before(trips: pd.DataFrame, vehicle: str, before: pd.Timestamp) -> dt.date | None:
+    g = trips[(trips["vehicle_id"] == vehicle) & (trips["start_time"] < before)].sort_values("start_time")
+    a = g["alert"].fillna(False).to_numpy(dtype=bool)
+    if not len(a) or not a[-1]:
+        return None
+    breaks = np.flatnonzero(~a)
+    return pd.Timestamp(g["start_time"].iloc[breaks[-1] + 1 if len(breaks) else 0]).date()
+
+
+def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit: set[str],
+             lead_zero: bool = False, random_order: bool = False) -> dict[str, float]:
+    t = truth[truth["onset_date"] <= as_of]
+    is_tyre = t["component"].str.startswith("tyre_")
+    lit = t["lamp_date"].map(lambda d: d is not None and not pd.isna(d) and d <= as_of)
+    positives = set(t.loc[~is_tyre & ~lit, "vehicle_id"])
+    excluded = lamp_lit | set(t.loc[lit, "vehicle_id"])
+    veh = result.vehicles[~result.vehicles["vehicle_id"].isin(excluded)].sort_values("order")
+    k = len(positives)
+    if random_order:
+        precision = k / len(veh) if k and len(veh) else np.nan
+    else:
+        precision = len(set(veh["vehicle_id"].head(k)) & positives) / k if k else np.nan
+    flagged = set(veh.loc[veh["flagged"], "vehicle_id"])
+    recall = len(flagged & positives) / k if k else np.nan
+    comp = result.vehicles.set_index("vehicle_id")["component"]
+    sensor = t[~is_tyre & t["vehicle_id"].isin(flagged | set(t.loc[lit, "vehicle_id"]))]
+    attributed = sensor[sensor["vehicle_id"].map(comp).fillna("none") != "none"]
+    attribution = (attributed["vehicle_id"].map(comp) == attributed["component"]).mean() if len(attributed) else np.nan
+    tyres = t[is_tyre]
+    tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
+    leads, fracs = [], []
+    for r in t[lit & ~is_tyre].itertuples():
+        start = None if lead_zero else _run_start_before(result.trips, r.vehicle_id, pd.Timestamp(r.lamp_date, tz="UTC"))
+        lead = max(0, (r.lamp_date - start).days) if start else 0
+        span = max(1, (r.lamp_date - r.onset_date).days)
+        leads.append(lead)
+        fracs.append(min(1.0, lead / span))
+    healthy = set(result.trips["vehicle_id"]) - set(truth["vehicle_id"])
+    ht = result.trips[result.trips["vehicle_id"].isin(healthy)].sort_values(["vehicle_id", "start_time"])
+    a = ht["alert"].fillna(False).astype(bool)
+    starts = int((a & ~a.groupby(ht["vehicle_id"]).shift(1, fill_value=False).astype(bool)).sum())
+    span_days = ht.groupby("vehicle_id")["start_time"].agg(lambda s: max(1.0, (s.max() - s.min()).total_seconds() / 86400))
+    vdays = float(span_days.sum()) if len(span_days) else np.nan
+    return {
+        "k (unlit sensor faults)": float(k),
+        "precision_at_k": float(precision),
+        "recall": float(recall),
+        "median_lead_days": float(np.median(leads)) if leads else np.nan,
+        "median_lead_fraction": float(np.median(fracs)) if fracs else np.nan,
+        "false_alarms_pct_per_30d": 100.0 * starts / (vdays / 30.0) if vdays else np.nan,
+        "healthy_vehicle_days_per_false_alarm": vdays / starts if starts else np.inf,
+        "attribution_accuracy": float(attribution),
+        "tyres_classed_tyre": float(tyre_ok),
+    }
+
+
+def evaluate(store: Store, truth_csv: Path | None, as_of: dt.date | None, early: bool = True) -> EvaluationReport:
+    """Evaluate against truth (all methods) or, without truth, backtest on lamp events."""
+    fleet = score_fleet(store, as_of)
+    if truth_csv is None:
+        return EvaluationReport(fleet.as_of, {}, backtest=_backtest(fleet),
+                                notes=["without a truth file the first lamp event of each vehicle is the event"])
+    truth = read_truth(Path(truth_csv))
+    report = _evaluate_fleet(fleet, truth)
+    onsets = pd.to_datetime(pd.Series(truth["onset_date"]))
+    early_date = (onsets.median() + pd.Timedelta(days=7)).date() if len(onsets) else None
+    if early and early_date is not None and early_date < fleet.as_of:
+        try:
+            report.early = _evaluate_fleet(score_fleet(store, early_date), truth)
+        except UserError as exc:
+            report.notes.append(f"early evaluation at {early_date} skipped: {exc}")
+    return report
+
+
+def _evaluate_fleet(fleet: ScoredFleet, truth: pd.DataFrame) -> EvaluationReport:
+    lamp_lit = set(fleet.status.loc[fleet.status["status"].eq("lamp_lit"), "vehicle_id"])
+    results = {
+        "tracktrue": (_tracktrue_result(fleet), {}),
+        "lamp_only": (MethodResult(
+            pd.DataFrame({"vehicle_id": fleet.status["vehicle_id"], "order": 1, "flagged": False, "component": "none"}),
+            fleet.drift.attrs["per_trip"][["vehicle_id", "start_time"]].assign(alert=False)),
+            {"lead_zero": True, "random_order": True}),
+        "single_feature": (_single_feature_result(fleet), {}),
+        "raw_forest": (_raw_forest_result(fleet), {}),
+    }
+    metrics = {name: _metrics(res, truth, fleet.as_of, lamp_lit, **kw) for name, (res, kw) in results.items()}
+    metrics["lamp_only"]["attribution_accuracy"] = np.nan
+    metrics["lamp_only"]["tyres_classed_tyre"] = np.nan
+    return EvaluationReport(fleet.as_of, metrics)
+
+
+def _backtest(fleet: ScoredFleet) -> pd.DataFrame:
+    """First lamp event per vehicle: how many days earlier tracktrue's alert run began."""
+    lamps = fleet.lamps.sort_values(["vehicle_id", "start_time"])
+    trips = fleet.drift.attrs["per_trip"]
+    rows = []
+    for vid, g in lamps.groupby("vehicle_id"):
+        ev = g[g["lamp_event"]]
+        if ev.empty:
+            continue
+        i = g.index.get_loc(ev.index[0])
+        on = g["lamp_on"].to_numpy()
+        while i > 0 and on[i - 1]:  # the event began with the first lit trip of its run
+            i -= 1
+        when = pd.Timestamp(g["start_time"].iloc[i])
+        start = _run_start_before(trips, vid, when)
+        rows.append({"vehicle_id": vid, "lamp_event": when.date(), "flagged_since": start,
+                     "days_earlier": (when.date() - start).days if start else 0})
+    return pd.DataFrame(rows, columns=["vehicle_id", "lamp_event", "flagged_since", "days_earlier"])
+

@@ -1,0 +1,87 @@
+"""Lamp events per trip: what the on-board monitor already says.
+
+DESIGN.md, "What the lamp means": an ESC lamp flashes during a stability
+intervention and stays lit while the driver has switched ESC off (until the
+next key cycle); an intermittent fault can store a trouble code while the lamp
+goes out. A lamp *event* is therefore a lamp (ABS or ESC) that is lit in two
+consecutive trips of a vehicle (it survived a key cycle), or a lit lamp that
+comes with a trouble code. A single trip with the ESC lamp and no code is an
+intervention or ESC-off: recorded (``lamp_on``), never an event.
+
+The per-trip summary comes from trip_features when features/ provides it
+(``lamp_abs_on``, ``lamp_esc_on``, ``dtc``); otherwise
+``read_trip_lamps`` aggregates the three lamp/code columns of the sample
+store — the only sample columns models/ ever reads.
+"""
+
+from __future__ import annotations
+
+import logging
+
+import duckdb
+import pandas as pd
+
+from tracktrue.store import Store
+
+log = logging.getLogger(__name__)
+
+LAMP_COLUMNS = ("lamp_abs_on", "lamp_esc_on", "dtc")
+
+
+def has_lamp_summary(trip_features: pd.DataFrame) -> bool:
+    return any(c in trip_features.columns for c in LAMP_COLUMNS)
+
+
+def lamp_summary_from_features(trip_features: pd.DataFrame) -> pd.DataFrame:
+    """trip_id, lamp_abs_on, lamp_esc_on (bool), dtc (text, '' when none)."""
+    out = pd.DataFrame({"trip_id": trip_features["trip_id"].to_numpy()})
+    for col in ("lamp_abs_on", "lamp_esc_on"):
+        v = trip_features[col] if col in trip_features.columns else pd.Series(False, index=trip_features.index)
+        out[col] = (pd.to_numeric(v, errors="coerce").fillna(0) > 0).to_numpy()
+    dtc = trip_features["dtc"] if "dtc" in trip_features.columns else pd.Series("", index=trip_features.index)
+    out["dtc"] = dtc.astype(object).where(dtc.notna(), "").astype(str).to_numpy()
+    return out
+
+
+def read_trip_lamps(store: Store, trip_ids: pd.Series) -> pd.DataFrame:
+    """Aggregate lamp_abs, lamp_esc and dtc per trip from the sample Parquet (absent columns → off)."""
+    files = sorted(store.samples_dir.rglob("*.parquet")) if store.samples_dir.is_dir() else []
+    empty = pd.DataFrame({"trip_id": trip_ids.to_numpy(), "lamp_abs_on": False, "lamp_esc_on": False, "dtc": ""})
+    if not files:
+        log.warning("no sample files under %s: lamp events unknown, treated as none", store.samples_dir)
+        return empty
+    con = duckdb.connect()
+    try:
+        rel = con.read_parquet([str(f) for f in files], union_by_name=True)
+        cols = set(rel.columns)
+        abs_e = "bool_or(coalesce(lamp_abs, false))" if "lamp_abs" in cols else "false"
+        esc_e = "bool_or(coalesce(lamp_esc, false))" if "lamp_esc" in cols else "false"
+        dtc_e = ("coalesce(string_agg(DISTINCT nullif(trim(dtc), ''), ' '), '')" if "dtc" in cols else "''")
+        df = con.execute(
+            f"SELECT trip_id, {abs_e} AS lamp_abs_on, {esc_e} AS lamp_esc_on, {dtc_e} AS dtc "
+            "FROM rel GROUP BY trip_id"
+        ).df()
+    finally:
+        con.close()
+    got = empty[["trip_id"]].merge(df, on="trip_id", how="left")
+    got["lamp_abs_on"] = got["lamp_abs_on"].fillna(False).astype(bool)
+    got["lamp_esc_on"] = got["lamp_esc_on"].fillna(False).astype(bool)
+    got["dtc"] = got["dtc"].fillna("").astype(str)
+    return got
+
+
+def lamp_events(trips: pd.DataFrame, lamps: pd.DataFrame) -> pd.DataFrame:
+    """Per trip (vehicle_id, trip_id, start_time): ``lamp_on`` and ``lamp_event`` (see module doc).
+
+    ``lamp_event`` on a trip uses only that trip and the vehicle's previous
+    one, so it never looks ahead of an as-of date: a lamp lit now counts once
+    it is still lit at the next key cycle, or at once with a trouble code.
+    """
+    df = trips[["vehicle_id", "trip_id", "start_time"]].merge(lamps, on="trip_id", how="left")
+    df = df.sort_values(["vehicle_id", "start_time"]).reset_index(drop=True)
+    on = df["lamp_abs_on"].fillna(False).astype(bool) | df["lamp_esc_on"].fillna(False).astype(bool)
+    coded = df["dtc"].fillna("").astype(str).str.strip() != ""
+    prev_on = on.groupby(df["vehicle_id"]).shift(1, fill_value=False).astype(bool)
+    df["lamp_on"] = on
+    df["lamp_event"] = on & (coded | prev_on)
+    return df[["vehicle_id", "trip_id", "start_time", "lamp_on", "lamp_event", "dtc"]]

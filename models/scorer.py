@@ -1,0 +1,458 @@
+"""The fleet scorer: peer normalisation → trip forest → vehicle score, drift and attribution.
+
+A scikit-learn-style estimator (STYLE.md): ``__init__`` stores the
+hyper-parameters and nothing else, ``fit(trip_features)`` learns the peer
+statistics, the forest and the drift calibration (state ends in ``_``),
+``score_trips`` and ``rank`` are pure given the fitted state.
+
+Vehicle score: the median trip score over the vehicle's last
+``vehicle_trips`` trips — one odd trip (gravel, a trailer) moves a median of
+ten by at most one order statistic.
+
+Drift: one statistic per evidence key of models.attribution (4 wheel signal,
+4 wheel ratio, and the yaw / steering / accelerometer residual groups: at most
+16, not one per feature), each the mean of its features' z-scores on a trip,
+referred to the vehicle's *own* baseline (median of its first
+``baseline_trips`` trips since the last service event) and divided by the
+fleet's pooled within-vehicle spread. That makes the CUSUM a detector of
+*change* — a healthy vehicle's persistent small offset is the peer forest's
+business, not an ever-growing CUSUM. Values are winsorised at ±``drift_clip``
+(a Huber-type robust CUSUM): one trip cannot cross ``h`` alone
+(``drift_clip − k < h``), and the heavy right tail of jitter and dropouts on
+healthy wheels (a rough road, one lost pulse) needs several trips in a row. ``h`` comes from
+the false-alarm budget (models.drift).
+
+A trip *alerts* when any drift statistic is above h or the vehicle's rolling
+score exceeds the fleet's inspect threshold (median + ``inspect_score_z`` ×
+scaled MAD of vehicle scores). ``flagged_since`` is the date of the first trip
+of the current run of alerting trips.
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from models.attribution import choose_component, suggestion_for
+from models.drift import required_arl0, tabular_cusum, threshold_for_arl
+from models.feature_set import describe_feature, evidence_key, model_features
+from models.forest import SubspaceForests
+from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
+from tracktrue.schema import STATUSES
+
+log = logging.getLogger(__name__)
+
+SENSOR_COMPONENTS_PREFIX = ("wheel_sensor_", "yaw_sensor", "steering_angle_sensor", "accel_long_sensor", "accel_lat_sensor")
+
+
+class FleetScorer:
+    """Rank a fleet's vehicles by sensor disagreement (see module doc for the method)."""
+
+    def __init__(
+        self,
+        min_peer_vehicles: int = 5,
+        ref_trips_per_vehicle: int = 30,
+        min_ref_trips: int = 10,
+        rel_floor: float = 0.1,
+        recent_days: float = 28.0,
+        n_estimators: int = 200,
+        max_samples: int = 256,
+        max_trips_per_vehicle: int = 5,
+        random_state: int = 0,
+        vehicle_trips: int = 10,
+        min_trips: int = 3,
+        baseline_trips: int = 30,
+        min_baseline_trips: int = 8,
+        cusum_k: float = 0.75,
+        drift_clip: float = 3.0,
+        forest_clip: float = 30.0,
+        baseline_lag_trips: int = 30,
+        budget_vehicle_days: float = 1500.0,
+        trips_per_day: float | None = None,
+        alert_hold_trips: int = 5,
+        inspect_score_z: float = 8.0,
+        watch_score_z: float = 4.0,
+        signal_z: float = 4.0,
+        attribution_z: float = 4.0,
+        watch_evidence_z: float = 6.0,
+        normalise_features: bool = True,
+    ):
+        self.min_peer_vehicles = min_peer_vehicles
+        self.ref_trips_per_vehicle = ref_trips_per_vehicle
+        self.min_ref_trips = min_ref_trips
+        self.rel_floor = rel_floor
+        self.recent_days = recent_days
+        self.n_estimators = n_estimators
+        self.max_samples = max_samples
+        self.max_trips_per_vehicle = max_trips_per_vehicle
+        self.random_state = random_state
+        self.vehicle_trips = vehicle_trips
+        self.min_trips = min_trips
+        self.baseline_trips = baseline_trips
+        self.min_baseline_trips = min_baseline_trips
+        self.cusum_k = cusum_k
+        self.drift_clip = drift_clip
+        self.forest_clip = forest_clip
+        self.baseline_lag_trips = baseline_lag_trips
+        self.budget_vehicle_days = budget_vehicle_days
+        self.trips_per_day = trips_per_day
+        self.alert_hold_trips = alert_hold_trips
+        self.inspect_score_z = inspect_score_z
+        self.watch_score_z = watch_score_z
+        self.signal_z = signal_z
+        self.attribution_z = attribution_z
+        self.watch_evidence_z = watch_evidence_z
+        self.normalise_features = normalise_features
+
+    # ------------------------------------------------------------------ fit
+    def get_params(self) -> dict:
+        return {k: getattr(self, k) for k in self.__init__.__code__.co_varnames[1:self.__init__.__code__.co_argcount]}
+
+    def fit(self, trip_features: pd.DataFrame, service_events: pd.DataFrame | None = None) -> "FleetScorer":
+        df = trip_features.copy()
+        df["start_time"] = pd.to_datetime(df["start_time"], utc=True)
+        df = df.sort_values(["vehicle_id", "start_time"], kind="stable").reset_index(drop=True)
+        self.features_ = model_features(df)
+        if not self.features_:
+            raise ValueError("trip_features holds no model feature columns")
+        df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, self.min_peer_vehicles)
+        self.peer_stats_ = peer_statistics(reference_sample(df, self.ref_trips_per_vehicle), self.features_,
+                                           self.rel_floor, self.min_ref_trips)
+        self.fallback_groups_ = sorted(df.loc[df["peer_fallback"], "peer_group"].unique().tolist())
+        self.as_of_ = df["start_time"].max()
+        recent = df[df["start_time"] >= self.as_of_ - pd.Timedelta(days=self.recent_days)]
+        design = self._design(recent)
+        self.forest_ = SubspaceForests(self._subspaces(), n_estimators=self.n_estimators,
+                                       max_samples=self.max_samples, max_trips_per_vehicle=self.max_trips_per_vehicle,
+                                       value_clip=self.forest_clip, random_state=self.random_state)
+        self.forest_.fit(design, recent["vehicle_id"], recent["start_time"], neutral_zero=self.normalise_features)
+        self.service_events_ = _service_table(service_events)
+        # drift calibration: statistics, baselines, pooled within-vehicle spread, threshold
+        stats = self._drift_statistics(df)
+        self.statistics_ = [c for c in stats.columns if stats[c].notna().any()]
+        base = self._baselines(df, stats)
+        spread = stats[self.statistics_].sub(base[self.statistics_]).abs()
+        # deviations of trips *outside* the baseline they are compared with (inside it,
+        # a trip pulls its own baseline towards itself and the spread comes out too small)
+        spread.loc[base["in_baseline"].to_numpy(), :] = np.nan
+        per_vehicle = spread.groupby([df["peer_group"].to_numpy(), df["vehicle_id"].to_numpy()]).median() * MAD_TO_SIGMA
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            fleet_sigma = per_vehicle.median().fillna(1.0).clip(lower=0.05)
+            by_group = per_vehicle.groupby(level=0).median()
+        by_group = by_group.fillna(fleet_sigma).clip(lower=0.05)
+        # a within-vehicle spread pooled over fewer than three vehicles is too noisy: use the fleet's
+        small = per_vehicle.groupby(level=0).size() < 3
+        by_group.loc[small[small].index] = fleet_sigma.to_numpy()
+        self.within_sigma_ = by_group
+        self.fleet_within_sigma_ = fleet_sigma
+        days = (df.groupby("vehicle_id")["start_time"].agg(lambda s: s.dt.floor("D").nunique()))
+        n = df.groupby("vehicle_id").size()
+        self.trips_per_day_ = float(self.trips_per_day or max(1.0, float(np.median(n / days))))
+        self.arl0_ = required_arl0(len(self.statistics_), self.trips_per_day_, self.budget_vehicle_days)
+        self.cusum_h_ = threshold_for_arl(self.cusum_k, self.arl0_)
+        # fleet score thresholds from the spread of vehicle scores
+        vscore = self._vehicle_scores(recent.assign(score=self.forest_.score(design)))
+        med = float(vscore.median())
+        mad = float((vscore - med).abs().median() * MAD_TO_SIGMA) or 1e-3
+        self.score_center_, self.score_scale_ = med, max(mad, 1e-3)
+        log.info("fitted on %d trips, %d features, h=%.2f (ARL0 %.0f trips)", len(df), len(self.features_),
+                 self.cusum_h_, self.arl0_)
+        return self
+
+    # ------------------------------------------------------------- helpers
+    def _design(self, df: pd.DataFrame, z: pd.DataFrame | None = None) -> pd.DataFrame:
+        """Forest input: peer z-scores, or raw features for the un-normalised baseline."""
+        if not self.normalise_features:
+            return df[self.features_].astype(float)
+        return z if z is not None else normalise(df, self.peer_stats_, self.features_)
+
+    def _subspaces(self) -> dict[str, list[str]]:
+        """Component subspaces for the forests (models.forest.SubspaceForests): one per
+        wheel, yaw, steering and each accelerometer; the baseline uses one forest on all."""
+        if not self.normalise_features:
+            return {"all": list(self.features_)}
+        groups: dict[str, list[str]] = {}
+        for f in self.features_:
+            key = evidence_key(f)
+            name = ("wheel_" + key.rsplit("_", 1)[1]) if key.startswith("wheel_") else key.split("_vs_")[0]
+            groups.setdefault(name, []).append(f)
+        return groups
+
+    def _vehicle_scores(self, scored: pd.DataFrame) -> pd.Series:
+        recent = scored.sort_values("start_time").groupby("vehicle_id").tail(self.vehicle_trips)
+        return recent.groupby("vehicle_id")["score"].median()
+
+    def _key_means(self, z: pd.DataFrame, clip: float) -> pd.DataFrame:
+        """Per trip, the mean clipped z of each evidence key's features."""
+        z = z.clip(-clip, clip)
+        keys = {f: evidence_key(f) for f in self.features_}
+        out = {}
+        for key in sorted(set(keys.values())):
+            cols = [f for f, k in keys.items() if k == key]
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                out[key] = np.nanmean(z[cols].to_numpy(dtype=float), axis=1)
+        return pd.DataFrame(out, index=z.index)
+
+    def _drift_statistics(self, df: pd.DataFrame) -> pd.DataFrame:
+        """Drift inputs per trip, in a unit common to the peer group (not leave-one-out:
+        the vehicle's own baseline removes its offset, and the scale must be shared
+        for the pooled within-vehicle spread to mean the same for every vehicle)."""
+        return self._key_means(normalise(df, self.peer_stats_, self.features_, leave_one_out=False),
+                               clip=self.drift_clip)
+
+    def _epochs(self, df: pd.DataFrame) -> np.ndarray:
+        """Number of service events before each trip: a repair starts a new baseline."""
+        ev = self.service_events_
+        if ev.empty:
+            return np.zeros(len(df), dtype=int)
+        merged = df[["vehicle_id", "start_time"]].reset_index().merge(ev, on="vehicle_id", how="left")
+        merged["before"] = merged["event_time"].notna() & (merged["event_time"] <= merged["start_time"])
+        return merged.groupby("index")["before"].sum().reindex(df.index, fill_value=0).to_numpy()
+
+    def _baselines(self, df: pd.DataFrame, stats: pd.DataFrame) -> pd.DataFrame:
+        """Each trip's own-vehicle baseline per statistic: a lagged expanding median.
+
+        Trip t of a (vehicle, epoch) series is compared with the median of its
+        trips [0, max(baseline_trips, t − baseline_lag_trips)): at first the
+        early trips, later all history but the most recent ``baseline_lag_trips``
+        (so a developing fault is not absorbed). A short fixed baseline would
+        leave each series a persistent estimation error of 1.25σ/√n, which a
+        CUSUM turns into false alarms; the growing history shrinks it.
+        Undefined (NaN) until ``min_baseline_trips`` values exist.
+        """
+        key = pd.Series(list(zip(df["vehicle_id"], self._epochs(df))), index=df.index).astype(str)
+        codes = pd.factorize(key)[0]
+        order = df.groupby(codes).cumcount().to_numpy()
+        x = stats[self.statistics_]
+        expanding = x.groupby(codes).expanding(min_periods=self.min_baseline_trips).median()
+        expanding = expanding.reset_index(level=0, drop=True).reindex(df.index)
+        upto = np.maximum(self.baseline_trips, order - self.baseline_lag_trips)  # exclusive end
+        size = pd.Series(order).groupby(codes).transform("size").to_numpy()
+        row = np.arange(len(df)) - order + np.minimum(upto, size) - 1  # series are contiguous rows
+        base = pd.DataFrame(expanding.to_numpy()[row], columns=self.statistics_, index=df.index)
+        base["in_baseline"] = order < self.baseline_trips
+        base["epoch_key"] = key.to_numpy()
+        return base
+
+    # ------------------------------------------------------------ scoring
+    def score_trips(self, trip_features: pd.DataFrame) -> pd.DataFrame:
+        """One row per trip: TRIP_SCORES_COLUMNS, peer_fallback, z_<feature>, drift statistics."""
+        df = trip_features.copy()
+        df["start_time"] = pd.to_datetime(df["start_time"], utc=True)
+        df = df.sort_values(["vehicle_id", "start_time"], kind="stable").reset_index(drop=True)
+        df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, self.min_peer_vehicles)
+        z = normalise(df, self.peer_stats_, self.features_)
+        design = self._design(df, z)
+        absz = z.abs().fillna(-1.0)
+        top = absz.to_numpy().argmax(axis=1) if len(df) else np.array([], dtype=int)
+        out = df[["trip_id", "vehicle_id", "start_time", "peer_group", "peer_fallback", "platform"]].copy()
+        out["score"] = self.forest_.score(design) if len(df) else np.array([])
+        out["top_feature"] = np.array(self.features_, dtype=object)[top] if len(df) else []
+        out["top_z"] = z.to_numpy()[np.arange(len(df)), top] if len(df) else []
+        zcols = z.add_prefix("z_")
+        return pd.concat([out, zcols], axis=1)
+
+    def drift(self, trip_features: pd.DataFrame, trip_scores: pd.DataFrame) -> pd.DataFrame:
+        """VEHICLE_DRIFT_COLUMNS long table, plus the per-trip ``alert`` in a wide frame (``.attrs``)."""
+        df = trip_scores[["trip_id", "vehicle_id", "start_time", "peer_group", "score"]].copy()
+        feats = trip_features.set_index("trip_id").loc[df["trip_id"], self.features_].reset_index(drop=True)
+        stats = self._drift_statistics(pd.concat([df, feats], axis=1))[self.statistics_]
+        base = self._baselines(df, stats)
+        groups = trip_scores["peer_group"].to_numpy()
+        sigma = self.within_sigma_.reindex(groups)[self.statistics_].fillna(self.fleet_within_sigma_)
+        u = ((stats - base[self.statistics_]) / sigma.to_numpy()).clip(-self.drift_clip, self.drift_clip)
+        u.loc[base["in_baseline"].to_numpy(), :] = np.nan  # the baseline trips are the reference, not evidence
+        hi, lo = _cusum_by_group(u, base["epoch_key"].to_numpy(), self.cusum_k)
+        alarm = np.maximum(hi, lo) > self.cusum_h_
+        rolling = (df.groupby(base["epoch_key"].to_numpy())["score"]
+                   .transform(lambda s: s.rolling(self.vehicle_trips, min_periods=self.min_trips).median()))
+        score_alert = ((rolling - self.score_center_) / self.score_scale_ >= self.inspect_score_z).to_numpy()
+        wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
+        wide["drift_alarm"] = alarm.any(axis=1)
+        wide["score_alert"] = score_alert
+        raw_alert = pd.Series((wide["drift_alarm"] | wide["score_alert"]).to_numpy(dtype=float))
+        # hold an alert for alert_hold_trips trips: a CUSUM hovering at h is one episode, not many
+        held = raw_alert.groupby(base["epoch_key"].to_numpy()).transform(
+            lambda s: s.rolling(self.alert_hold_trips, min_periods=1).max())
+        wide["alert"] = held.to_numpy() > 0
+        wide["epoch_key"] = base["epoch_key"].to_numpy()
+        for j, s in enumerate(self.statistics_):
+            wide[f"strength__{s}"] = np.maximum(hi[:, j], lo[:, j]) / self.cusum_h_
+        long = pd.DataFrame({
+            "vehicle_id": np.repeat(df["vehicle_id"].to_numpy(), len(self.statistics_)),
+            "trip_id": np.repeat(df["trip_id"].to_numpy(), len(self.statistics_)),
+            "start_time": np.repeat(df["start_time"].to_numpy(), len(self.statistics_)),
+            "statistic": np.tile(np.array(self.statistics_, dtype=object), len(df)),
+            "value": u.to_numpy().ravel(),
+            "cusum_hi": hi.ravel(),
+            "cusum_lo": lo.ravel(),
+            "threshold": self.cusum_h_,
+            "alarm": alarm.ravel(),
+        })
+        long["start_time"] = pd.to_datetime(long["start_time"], utc=True)
+        long.attrs["per_trip"] = wide
+        return long
+
+    def rank(self, trip_scores: pd.DataFrame, drift_long: pd.DataFrame, lamps: pd.DataFrame,
+             vehicles: pd.DataFrame | None = None, as_of=None) -> pd.DataFrame:
+        """VEHICLE_STATUS_COLUMNS (plus helper columns), ordered by status then score."""
+        per_trip = drift_long.attrs["per_trip"]
+        ts = trip_scores.merge(per_trip[["trip_id", "alert", "epoch_key"]], on="trip_id", how="left")
+        ts = ts.sort_values(["vehicle_id", "start_time"])
+        current = ts.groupby("vehicle_id")["epoch_key"].transform("last")
+        cur = ts[ts["epoch_key"] == current]
+        recent = cur.groupby("vehicle_id").tail(self.vehicle_trips)
+        zc = [f"z_{f}" for f in self.features_]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            zmed = recent.groupby("vehicle_id")[zc].median()
+        vscore = recent.groupby("vehicle_id")["score"].median()
+        n_recent = recent.groupby("vehicle_id").size()
+        last = cur.groupby("vehicle_id").tail(1).set_index("vehicle_id")
+        since = _run_start(cur)
+        lamp_last = lamps.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
+        strength = per_trip.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
+        rows = []
+        for vid in vscore.index:
+            ev = self._evidence(zmed.loc[vid])
+            component, key = choose_component(ev, self.signal_z, self.attribution_z)
+            alert = bool(last.at[vid, "alert"])
+            if alert and component == "none":
+                drift_ev = {s: strength.at[vid, f"strength__{s}"] * self.attribution_z for s in self.statistics_}
+                component, key = choose_component(drift_ev, self.signal_z, self.attribution_z)
+            lamp_on = bool(lamp_last.at[vid, "lamp_on"]) if vid in lamp_last.index else False
+            lamp_event = bool(lamp_last.at[vid, "lamp_event"]) if vid in lamp_last.index else False
+            score_z = (vscore[vid] - self.score_center_) / self.score_scale_
+            if lamp_event:
+                status = "lamp_lit"
+            elif n_recent[vid] < self.min_trips:
+                status = "insufficient_data"
+            elif alert and component.startswith(SENSOR_COMPONENTS_PREFIX):
+                status = "inspect"
+            elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
+                status = "watch"
+            else:
+                status, component, key = "ok", "none", None
+            flagged = since.get(vid) if alert else None
+            rows.append({
+                "vehicle_id": vid,
+                "platform": last.at[vid, "platform"],
+                "peer_group": last.at[vid, "peer_group"],
+                "score": float(vscore[vid]),
+                "score_z": float(score_z),
+                "status": status,
+                "suspected_component": component,
+                "evidence": self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last),
+                "flagged_since": flagged,
+                "last_trip": last.at[vid, "start_time"],
+                "suggestion": suggestion_for(component) if status != "ok" else "",
+                "lamp_on": lamp_on,
+                "n_trips": int(n_recent[vid]),
+                "alert": alert,
+            })
+        out = pd.DataFrame(rows)
+        if vehicles is not None and not vehicles.empty:
+            info = vehicles.drop_duplicates("vehicle_id").set_index("vehicle_id")
+            out["depot"] = out["vehicle_id"].map(info["depot"]) if "depot" in info.columns else None
+            if "platform" in info.columns:
+                out["platform"] = out["vehicle_id"].map(info["platform"]).fillna(out["platform"])
+        else:
+            out["depot"] = None
+        order = {s: i for i, s in enumerate(STATUSES)}
+        out["_o"] = out["status"].map(order)
+        out = out.sort_values(["_o", "score"], ascending=[True, False]).drop(columns="_o").reset_index(drop=True)
+        out.insert(0, "rank", np.arange(1, len(out) + 1))
+        out["as_of"] = as_of
+        return out
+
+    def _evidence(self, zmed: pd.Series) -> dict[str, float]:
+        """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""
+        ev: dict[str, float] = {}
+        for f in self.features_:
+            v = zmed.get(f"z_{f}")
+            if v is None or np.isnan(v):
+                continue
+            key = evidence_key(f)
+            strength = max(v, 0.0) if key.startswith("wheel_signal_") else abs(v)
+            ev[key] = max(ev.get(key, 0.0), strength)
+        return ev
+
+    def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last) -> str:
+        parts = []
+        if vid in lamp_last.index and bool(lamp_last.at[vid, "lamp_event"]):
+            dtc = str(lamp_last.at[vid, "dtc"] or "").strip()
+            parts.append("warning lamp lit" + (f" with trouble code {dtc}" if dtc else " across key cycles"))
+        if key is not None:
+            feats = [f for f in self.features_ if evidence_key(f) == key]
+            f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
+            rows = recent[recent["vehicle_id"] == vid]
+            value = float(np.nanmedian(rows[f"raw__{f}"])) if f"raw__{f}" in rows else np.nan
+            center = float(np.nanmedian(rows[f"center__{f}"])) if f"center__{f}" in rows else np.nan
+            words, unit = describe_feature(f)
+            group = str(rows["peer_group"].iloc[-1])
+            text = (f"{words} {_fmt(value)}{_unit(unit)} against a peer median of {_fmt(center)}{_unit(unit)} "
+                    f"({group}; {_fmt(zmed.get(f'z_{f}'))} peer spreads, median of {len(rows)} recent trips)")
+            if flagged is not None and as_of is not None:
+                days = (pd.Timestamp(as_of).date() - flagged).days
+                text += f", flagged for {days} days"
+            parts.append(text)
+        return "; ".join(parts)
+
+    def attach_raw(self, trip_scores: pd.DataFrame, trip_features: pd.DataFrame) -> pd.DataFrame:
+        """Add raw value and peer centre of each feature (for evidence text; not published)."""
+        df = trip_features.copy()
+        df["start_time"] = pd.to_datetime(df["start_time"], utc=True)
+        df = df.set_index("trip_id").loc[trip_scores["trip_id"]].reset_index()
+        df["peer_group"] = trip_scores["peer_group"].to_numpy()
+        s = lookup_statistics(df, self.peer_stats_)
+        extra = {f"raw__{f}": df[f].to_numpy(dtype=float) for f in self.features_}
+        extra.update({f"center__{f}": s[f"center__{f}"].to_numpy(dtype=float) for f in self.features_})
+        return pd.concat([trip_scores.reset_index(drop=True), pd.DataFrame(extra)], axis=1)
+
+
+def _fmt(x) -> str:
+    if x is None or not np.isfinite(x):
+        return "n/a"
+    a = abs(x)
+    return f"{x:.2f}" if a >= 0.1 or a == 0 else f"{x:.3f}" if a >= 0.01 else f"{x:.4f}"
+
+
+def _unit(unit: str) -> str:
+    return "" if not unit else (" %" if unit == "%" else f" {unit}")
+
+
+def _service_table(events: pd.DataFrame | None) -> pd.DataFrame:
+    if events is None or len(events) == 0:
+        return pd.DataFrame({"vehicle_id": pd.Series(dtype=object), "event_time": pd.Series(dtype="datetime64[ns, UTC]")})
+    col = "event_time" if "event_time" in events.columns else "date"
+    return pd.DataFrame({"vehicle_id": events["vehicle_id"].astype(str).to_numpy(),
+                         "event_time": pd.to_datetime(events[col], utc=True).to_numpy()})
+
+
+def _cusum_by_group(u: pd.DataFrame, keys: np.ndarray, k: float) -> tuple[np.ndarray, np.ndarray]:
+    """Run the CUSUM per (vehicle, epoch) series, all series advancing together (padded)."""
+    codes, uniq = pd.factorize(keys)
+    pos = pd.Series(codes).groupby(codes).cumcount().to_numpy()
+    n_series, length, n_stat = len(uniq), (pos.max() + 1) if len(pos) else 0, u.shape[1]
+    cube = np.full((n_series, n_stat, length), np.nan)
+    cube[codes, :, pos] = u.to_numpy(dtype=float)
+    hi, lo = tabular_cusum(cube, k)
+    return hi[codes, :, pos], lo[codes, :, pos]
+
+
+def _run_start(ts: pd.DataFrame) -> dict:
+    """Date of the first trip of each vehicle's current run of alerting trips."""
+    out = {}
+    for vid, g in ts.groupby("vehicle_id", sort=False):
+        a = g["alert"].fillna(False).to_numpy(dtype=bool)
+        if not a[-1]:
+            continue
+        breaks = np.flatnonzero(~a)
+        first = breaks[-1] + 1 if len(breaks) else 0
+        out[vid] = pd.Timestamp(g["start_time"].iloc[first]).date()
+    return out
