@@ -1,0 +1,154 @@
+"""Accelerometer features: each compares the accelerometer with one other source.
+
+The longitudinal accelerometer reads dv/dt + g·sin(grade); the lateral one
+v·r + g·sin(roll + bank). Grade, crown and roll are real and larger than the
+offsets worth finding, so offsets come from many stops and from means that
+let grade average out (DESIGN.md, "Grade, crown and creeping").
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from features.row import FeatureRow
+from features.signals import (
+    TripArrays,
+    median_of_four,
+    moving_mean,
+    seconds,
+    smooth_derivative,
+    three_cornered_hat,
+    window_samples,
+)
+from features.wheels import WheelReference, steady_reference_window, wheel_comparison_window
+from features.windows import Windows
+from features.yaw import REST_MIN_S, wheel_yaw_reason
+from features.spec import VehicleSpec
+from tracktrue.schema import POSITIONS
+from tracktrue.units import G0_MPS2
+
+#: Derivative features need a few samples per second.
+DERIVATIVE_MIN_RATE_HZ = 2.0
+RESIDUAL_MIN_KM = 1.0
+#: Slow content (grade, drift) removed before comparing a wheel's acceleration.
+WHEEL_ACCEL_HIGHPASS_S = 5.0
+WHEEL_ACCEL_MIN_S = 30.0
+#: Lateral intercept is fitted where |v·r| is below this.
+LAT_LOW_MPS2 = 1.5
+LAT_MIN_S = 30.0
+SMOOTH_S = 1.0
+
+
+def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
+    """accel_long_rest_g, accel_lat_rest_g = median accelerometer over standstill / g0, in g.
+
+    At rest the true acceleration is 0; what remains is offset + g·sin(grade
+    or bank) of this trip's stops, which averages out over many stops.
+    """
+    for signal, name in (("accel_long", "accel_long_rest_g"), ("accel_lat", "accel_lat_rest_g")):
+        if not trip.has(signal):
+            row.nan(name, "signal_missing")
+        elif windows.standstill_reason:
+            row.nan(name, windows.standstill_reason)
+        elif seconds(windows.standstill, trip) < REST_MIN_S:
+            row.nan(name, "no_standstill")
+        else:
+            row.set(name, np.nanmedian(trip.signals[signal][windows.standstill]) / G0_MPS2)
+
+
+def wheel_acceleration_reference(trip: TripArrays, ref: WheelReference) -> np.ndarray:
+    """dv/dt of the median of the four (calibrated where possible) wheel speeds, Savitzky–Golay, m/s²."""
+    wheels = ref.calibrated_wheels if np.isfinite(ref.radius_offset).all() else trip.wheels
+    return smooth_derivative(median_of_four(wheels), trip)
+
+
+def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Windows, ref: WheelReference) -> None:
+    """accel_long_residual_g = Σ (a_x − dv/dt)·v·dt / Σ v·dt over moving, / g0, in g.
+
+    The distance-weighted mean of a_x − dv/dt equals offset + g·Δh/distance
+    (DESIGN.md), Δh → 0 over round trips. dv/dt is the Savitzky–Golay
+    derivative of the median wheel speed, so one wheel's false accelerations
+    do not enter. Sources: longitudinal accelerometer vs wheel speeds.
+    """
+    name = "accel_long_residual_g"
+    if not trip.has("accel_long"):
+        row.nan(name, "signal_missing")
+        return
+    if not trip.rate_hz >= DERIVATIVE_MIN_RATE_HZ:
+        row.nan(name, "rate_too_low")
+        return
+    dvdt = wheel_acceleration_reference(trip, ref)
+    residual = trip.signals["accel_long"] - dvdt
+    usable = windows.moving & np.isfinite(residual)
+    weight = windows.speed[usable] * trip.dt[usable]
+    if weight.sum() / 1000.0 < RESIDUAL_MIN_KM:
+        row.nan(name, "too_little_distance")
+        return
+    row.set(name, float(np.sum(residual[usable] * weight) / weight.sum()) / G0_MPS2)
+
+
+def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
+    """wheel_accel_disagree_<pos>_g = σ_pos / g0: the pos wheel's own false acceleration, in g.
+
+    Five estimates of the body's longitudinal acceleration: each wheel's
+    Savitzky–Golay derivative and the accelerometer, each high-passed (minus
+    a 5 s moving mean, which removes grade and offset). The variance of every
+    wheel–accelerometer and wheel–wheel difference is σ_i² + σ_j²; solving
+    the ten pairs (three-cornered hat, Gray & Allan 1974) gives each wheel its
+    own σ, so a wheel that seems to speed up and slow down while the
+    accelerometer and the other wheels see nothing is pinned to itself
+    (CHECKS.md, common practice). Plain variances, not robust ones: a damaged
+    ring's false accelerations are rare, sharp spikes.
+    """
+    names = [f"wheel_accel_disagree_{p}_g" for p in POSITIONS]
+    if not trip.has("accel_long"):
+        row.nan_all(names, "signal_missing")
+        return
+    usable = wheel_comparison_window(row, names, trip, windows, DERIVATIVE_MIN_RATE_HZ, WHEEL_ACCEL_MIN_S)
+    if usable is None:
+        return
+    width = window_samples(WHEEL_ACCEL_HIGHPASS_S, trip.rate_hz)
+
+    def highpassed(x: np.ndarray) -> np.ndarray:
+        x = np.where(usable, x, np.nan)
+        return x - moving_mean(x, width)
+
+    sources = [highpassed(smooth_derivative(trip.wheels[i], trip)) for i in range(4)]
+    sources.append(highpassed(trip.signals["accel_long"]))
+    pair_var = {(i, j): float(np.nanvar(sources[i] - sources[j]))
+                for i in range(5) for j in range(i + 1, 5)}
+    own_var = three_cornered_hat(pair_var, 5)
+    for name, var in zip(names, own_var[:4]):
+        row.set(name, np.sqrt(var) / G0_MPS2)
+
+
+def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
+                         windows: Windows, ref: WheelReference) -> None:
+    """lat_residual_g = intercept b0 of a_y − v·r_wheels = b0 + b1·v·r_wheels on |v·r| < 1.5 m/s², / g0, in g.
+
+    a_y = v·r in steady cornering (CHECKS.md); v and r from the calibrated
+    rear axle, both sides smoothed over 1 s. Road crown and roll bias a_y in
+    proportion to cornering and by a constant; the intercept on low-a_y
+    windows is the accelerometer offset plus the average crown. Sources:
+    lateral accelerometer vs wheel speeds.
+    """
+    name = "lat_residual_g"
+    reason = "signal_missing" if not trip.has("accel_lat") else wheel_yaw_reason(trip, spec, ref)
+    if reason:
+        row.nan(name, reason)
+        return
+    width = window_samples(SMOOTH_S, trip.rate_hz)
+    ay = moving_mean(trip.signals["accel_lat"], width)
+    vr = moving_mean(ref.speed * ref.yaw_rate, width)
+    with np.errstate(invalid="ignore"):
+        usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_LOW_MPS2)
+                  & np.isfinite(ay) & np.isfinite(vr))
+    if seconds(usable, trip) < LAT_MIN_S:
+        row.nan(name, "too_little_driving")
+        return
+    x, y = vr[usable], ay[usable] - vr[usable]
+    if np.std(x) > 0.05:
+        _, intercept = np.polyfit(x, y, 1)
+    else:
+        intercept = np.median(y)
+    row.set(name, intercept / G0_MPS2)

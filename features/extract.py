@@ -1,0 +1,117 @@
+"""The per-trip feature row: a pure function of (trip samples, vehicle spec).
+
+No file access and no state, so it runs unchanged on one core, in a pool or on
+Dask partitions (DESIGN.md).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+import numpy as np
+import pandas as pd
+
+from features.accel import (
+    accel_long_residual_feature,
+    accel_rest_features,
+    lat_residual_feature,
+    wheel_accel_features,
+)
+from features.row import FeatureRow
+from features.signals import TripArrays, seconds, trip_arrays
+from features.spec import VehicleSpec
+from features.wheels import (
+    calibrate,
+    trip_distance_km,
+    wheel_dropout_features,
+    wheel_jitter_features,
+    wheel_ratio_features,
+)
+from features.windows import find_windows
+from features.yaw import (
+    steer_center_feature,
+    steer_yaw_residual_feature,
+    steering_fit_sums,
+    yaw_regression_features,
+    yaw_rest_feature,
+)
+from tracktrue.units import DEG_RAD
+from tracktrue.schema import CORE_FEATURES, NUMERIC_SIGNALS, POSITIONS, QUALITY_COLUMNS
+
+#: Features beyond DESIGN.md's table.
+EXTRA_FEATURES: tuple[str, ...] = tuple(f"wheel_accel_disagree_{p}_g" for p in POSITIONS)
+FEATURE_COLUMNS: tuple[str, ...] = (*CORE_FEATURES, *EXTRA_FEATURES)
+RESOLUTION_COLUMNS: tuple[str, ...] = tuple(f"resolution_{s}" for s in NUMERIC_SIGNALS)
+#: Per-trip sums for estimating a platform's steering ratio and understeer (features.platform_params).
+STEERFIT_COLUMNS: tuple[str, ...] = (
+    "steerfit_rr", "steerfit_rrv2", "steerfit_rrv4", "steerfit_rvs", "steerfit_rv3s", "steerfit_s",
+)
+#: Every column extract_trip_features returns, in order.
+ROW_COLUMNS: tuple[str, ...] = (
+    *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS, "nan_reasons",
+)
+#: Signals whose missing samples count towards missing_fraction (when logged at all).
+CORE_SIGNALS: tuple[str, ...] = tuple(s for s in NUMERIC_SIGNALS if s != "vehicle_speed")
+
+
+def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, object]:
+    """One trip's feature row (ROW_COLUMNS) from its canonical samples and its vehicle's spec.
+
+    ``samples``: one trip, columns of tracktrue.schema.SAMPLE_COLUMNS, SI units.
+    ``spec``: registry columns (wheelbase_m, track_front_m, track_rear_m,
+    steering_ratio, understeer_gradient_deg_per_g); missing values make the
+    features that need them NaN with ``spec_missing:<column>``.
+    """
+    vehicle = VehicleSpec.from_mapping(spec)
+    row = FeatureRow()
+    if len(samples) < 2:
+        row.nan_all(FEATURE_COLUMNS, "too_few_samples")
+        out = row.as_dict()
+        out.update(_empty_quality(samples))
+        return {c: out.get(c, np.nan) for c in ROW_COLUMNS}
+    trip = trip_arrays(samples)
+    windows = find_windows(trip, vehicle)
+    distance_km = trip_distance_km(trip)
+    ref = calibrate(trip, vehicle, windows)
+
+    wheel_ratio_features(row, trip, vehicle, windows, ref)
+    wheel_jitter_features(row, trip, windows)
+    wheel_dropout_features(row, trip, distance_km)
+    yaw_rest_feature(row, trip, windows)
+    yaw_regression_features(row, trip, vehicle, windows, ref)
+    steer_center_feature(row, trip, windows)
+    steer_yaw_residual_feature(row, trip, vehicle, windows, ref, row.values["steer_center_deg"] * DEG_RAD)
+    accel_rest_features(row, trip, windows)
+    accel_long_residual_feature(row, trip, windows, ref)
+    lat_residual_feature(row, trip, vehicle, windows, ref)
+    wheel_accel_features(row, trip, windows)
+
+    out = row.as_dict()
+    out.update(_quality(trip, windows, distance_km))
+    out.update(steering_fit_sums(trip, vehicle, windows))
+    return {c: out[c] for c in ROW_COLUMNS}
+
+
+def _quality(trip: TripArrays, windows, distance_km: float) -> dict[str, object]:
+    """Quality columns: how much to trust the row (DESIGN.md feature table, last line)."""
+    present = [trip.signal(s) for s in CORE_SIGNALS if trip.has(s)]
+    missing = float(np.mean([np.isnan(x).mean() for x in present])) if present else 1.0
+    out: dict[str, object] = {
+        "duration_s": float(trip.t[-1] - trip.t[0]),
+        "distance_km": distance_km,
+        "sample_rate_hz": float(trip.rate_hz),
+        "missing_fraction": missing,
+        "standstill_s": seconds(windows.standstill, trip),
+        "cruise_s": seconds(windows.cruise, trip),
+        "moving_s": seconds(windows.moving, trip),
+        "signals": ",".join(s for s in (*NUMERIC_SIGNALS, "brake") if trip.has(s)),
+    }
+    out.update({f"resolution_{s}": trip.resolution[s] for s in NUMERIC_SIGNALS})
+    return out
+
+
+def _empty_quality(samples: pd.DataFrame) -> dict[str, object]:
+    out: dict[str, object] = dict.fromkeys((*QUALITY_COLUMNS, *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS), np.nan)
+    out.update({"duration_s": 0.0, "distance_km": 0.0, "missing_fraction": 1.0,
+                "standstill_s": 0.0, "cruise_s": 0.0, "moving_s": 0.0, "signals": ""})
+    return out

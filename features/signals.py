@@ -1,0 +1,267 @@
+"""One trip's samples as plain numpy arrays, and the vectorised helpers the features share.
+
+Feature code works on arrays, not DataFrames, so a trip is converted once and
+every window and feature is a handful of whole-array operations (no per-sample
+Python loops). Missing values are NaN throughout; a signal the log lacks is all
+NaN and ``has(name)`` is False.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.signal import savgol_filter
+
+from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
+
+#: A step longer than this many nominal sample periods is a gap: integration
+#: does not bridge it and derivatives are not taken across it.
+GAP_PERIODS = 2.5
+
+
+@dataclass(frozen=True)
+class TripArrays:
+    """A trip's signals, time-sorted, in SI units."""
+
+    t: np.ndarray  #: seconds since the first sample
+    dt: np.ndarray  #: seconds each sample stands for (gaps capped), for integrals
+    rate_hz: float  #: nominal rate, 1 / median step
+    wheels: np.ndarray  #: (4, n) wheel speeds fl, fr, rl, rr in m/s
+    signals: Mapping[str, np.ndarray]  #: the other numeric signals by canonical name
+    brake: np.ndarray  #: 1.0 pressed, 0.0 released, NaN unknown
+    gap_after: np.ndarray  #: True where the step to the next sample is a gap
+    resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
+
+    @property
+    def n(self) -> int:
+        return self.t.size
+
+    def signal(self, name: str) -> np.ndarray:
+        """Any numeric signal (or ``brake``) by its canonical name."""
+        if name == "brake":
+            return self.brake
+        if name in WHEEL_SPEED_COLUMNS:
+            return self.wheels[WHEEL_SPEED_COLUMNS.index(name)]
+        return self.signals[name]
+
+    def has(self, name: str) -> bool:
+        """A signal counts as logged if any of its samples is present."""
+        return bool(np.isfinite(self.signal(name)).any())
+
+    def wheel(self, pos: str) -> np.ndarray:
+        return self.wheels[POSITIONS.index(pos)]
+
+
+def trip_arrays(samples: pd.DataFrame) -> TripArrays:
+    """Convert one trip's canonical samples (tracktrue.schema.SAMPLE_COLUMNS) to arrays."""
+    time = pd.to_datetime(samples["time"], utc=True)
+    t_ns = time.to_numpy(dtype="datetime64[ns]").astype(np.int64)
+    order = np.argsort(t_ns, kind="stable")
+    sorted_ = bool(np.all(order == np.arange(order.size)))
+    t = (t_ns - t_ns[order[0]]).astype(np.float64) / 1e9 if t_ns.size else np.zeros(0)
+    if not sorted_:
+        t = t[order]
+
+    def column(name: str) -> np.ndarray:
+        if name not in samples.columns:
+            return np.full(t.size, np.nan)
+        values = samples[name].to_numpy(dtype=np.float64, na_value=np.nan)
+        return values if sorted_ else values[order]
+
+    steps = np.diff(t)
+    positive = steps[steps > 0]
+    period = float(np.median(positive)) if positive.size else np.nan
+    rate = 1.0 / period if period > 0 else np.nan
+    gap_after = np.zeros(t.size, dtype=bool)
+    if steps.size:
+        gap_after[:-1] = steps > GAP_PERIODS * period
+    dt = np.empty(t.size)
+    if t.size:
+        dt[:-1] = np.where(gap_after[:-1], period, steps)
+        dt[-1] = period if np.isfinite(period) else 0.0
+    wheels = np.vstack([column(c) for c in WHEEL_SPEED_COLUMNS]) if t.size else np.zeros((4, 0))
+    others = {c: column(c) for c in NUMERIC_SIGNALS if c not in WHEEL_SPEED_COLUMNS}
+    brake = column("brake")
+    resolution = {c: smallest_step(column(c)) for c in NUMERIC_SIGNALS}
+    return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
+                      gap_after=gap_after, resolution=resolution)
+
+
+def smallest_step(values: np.ndarray) -> float:
+    """Smallest non-zero difference between distinct values: the logger's resolution.
+
+    Rounded to 1e-9 first so float noise from unit conversion is not taken for
+    a finer step. NaN if fewer than two distinct values.
+    """
+    finite = values[np.isfinite(values)]
+    distinct = np.unique(np.round(finite, 9))
+    if distinct.size < 2:
+        return np.nan
+    return float(np.diff(distinct).min())
+
+
+def window_samples(seconds: float, rate_hz: float, minimum: int = 1) -> int:
+    """An odd window length in samples covering about ``seconds`` at ``rate_hz``."""
+    w = int(round(seconds * rate_hz)) if np.isfinite(rate_hz) else minimum
+    w = max(w, minimum)
+    return w if w % 2 else w + 1
+
+
+def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
+    """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid)."""
+    valid = np.isfinite(x)
+    csum = np.concatenate(([0.0], np.cumsum(np.where(valid, x, 0.0))))
+    ccount = np.concatenate(([0], np.cumsum(valid)))
+    idx = np.arange(x.size)
+    half = width // 2
+    hi = np.minimum(idx + half + 1, x.size)
+    lo = np.maximum(idx - half, 0)
+    count = ccount[hi] - ccount[lo]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(count > 0, (csum[hi] - csum[lo]) / count, np.nan)
+
+
+def moving_std(x: np.ndarray, width: int) -> np.ndarray:
+    """Centred moving standard deviation (population), NaN-skipping."""
+    mean = moving_mean(x, width)
+    mean_sq = moving_mean(x * x, width)
+    return np.sqrt(np.clip(mean_sq - mean * mean, 0.0, None))
+
+
+def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
+    """True within ``half_width`` samples of a time gap (derivatives are unreliable there)."""
+    if not trip.gap_after.any():
+        return np.zeros(trip.n, dtype=bool)
+    marks = trip.gap_after.astype(float)
+    # a gap after sample i touches samples i and i+1
+    marks[1:] = np.maximum(marks[1:], trip.gap_after[:-1])
+    return moving_mean(marks, 2 * half_width + 1) > 0
+
+
+def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
+    """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second.
+
+    Savitzky & Golay (1964), scipy.signal.savgol_filter. The window is at least
+    5 samples, so at low rates it is longer than ``window_s`` (a quadratic
+    through fewer points follows the noise). NaN runs are bridged linearly
+    before filtering and set back to NaN after; samples near a time gap are NaN.
+    """
+    w = window_samples(window_s, trip.rate_hz, minimum=5)
+    out = np.full(x.size, np.nan)
+    valid = np.isfinite(x)
+    if valid.sum() < w:
+        return out
+    idx = np.arange(x.size)
+    filled = x if valid.all() else np.interp(idx, idx[valid], x[valid])
+    out = savgol_filter(filled, w, polyorder=2, deriv=1, delta=1.0 / trip.rate_hz, mode="interp")
+    out[~valid | near_gap(trip, w // 2)] = np.nan
+    return out
+
+
+def median_of_four(values: np.ndarray) -> np.ndarray:
+    """Per-sample median of the (4, n) wheel array, ignoring NaN wheels.
+
+    The median of four independent sensors is a vote: one wheel reading zero or
+    jittering cannot move it far.
+    """
+    s = np.sort(values, axis=0)  # NaN sort last
+    k = np.isfinite(values).sum(axis=0)
+    mid_even = 0.5 * (s[np.maximum(k // 2 - 1, 0), np.arange(s.shape[1])] + s[np.minimum(k // 2, 3), np.arange(s.shape[1])])
+    mid_odd = s[np.minimum(k // 2, 3), np.arange(s.shape[1])]
+    out = np.where(k % 2 == 0, mid_even, mid_odd)
+    return np.where(k > 0, out, np.nan)
+
+
+def median_of_three(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """Per-sample median of three arrays (NaN if any is NaN)."""
+    return a + b + c - np.maximum(np.maximum(a, b), c) - np.minimum(np.minimum(a, b), c)
+
+
+def seconds(mask: np.ndarray, trip: TripArrays) -> float:
+    """Time covered by the samples in ``mask``, in s."""
+    return float(trip.dt[mask].sum())
+
+
+def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: float = 0.0) -> np.ndarray:
+    """Keep only runs of ``mask`` lasting at least ``min_s``, minus their first ``trim_start_s``.
+
+    A run is broken by a time gap as well as by a False sample.
+    """
+    if not mask.any():
+        return mask.copy()
+    starts = mask & ~np.concatenate(([False], mask[:-1] & ~trip.gap_after[:-1]))
+    ends = mask & ~np.concatenate((mask[1:] & ~trip.gap_after[:-1], [False]))
+    run_id = np.cumsum(starts) - 1
+    start_t = trip.t[starts]
+    end_t = trip.t[ends] + trip.dt[ends]
+    long_enough = (end_t - start_t) >= min_s
+    rid = np.clip(run_id, 0, None)
+    return mask & long_enough[rid] & (trip.t - start_t[rid] >= trim_start_s)
+
+
+def count_events(mask: np.ndarray) -> int:
+    """Number of separate runs (rising edges) of ``mask``."""
+    return int(np.count_nonzero(mask & ~np.concatenate(([False], mask[:-1]))))
+
+
+def robust_spread(x: np.ndarray) -> float:
+    """1.4826 · median absolute deviation: the standard deviation for Gaussian data, robust to outliers."""
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return np.nan
+    return float(1.4826 * np.median(np.abs(x - np.median(x))))
+
+
+def white_noise_variance(x: np.ndarray, mask: np.ndarray) -> float:
+    """Variance of a signal's sample-to-sample noise, var(Δx)/2 over consecutive masked samples.
+
+    The difference of two neighbouring samples cancels a slowly varying
+    signal and doubles white noise's variance (von Neumann's mean square
+    successive difference, 1941).
+    """
+    pair = mask[1:] & mask[:-1]
+    d = np.diff(x)[pair]
+    d = d[np.isfinite(d)]
+    return float(np.var(d) / 2.0) if d.size > 1 else np.nan
+
+
+def deming_fit(x: np.ndarray, y: np.ndarray, noise_ratio: float) -> tuple[float, float]:
+    """Slope and intercept of y = a + b·x when both x and y carry noise (Deming regression).
+
+    ``noise_ratio`` δ = var(noise in y) / var(noise in x). Ordinary least
+    squares would shrink the slope by var(x)/(var(x) + var(noise in x));
+    Deming (1943): b = (s_yy − δ·s_xx + √((s_yy − δ·s_xx)² + 4·δ·s_xy²)) / (2·s_xy).
+    δ → ∞ gives ordinary least squares of y on x.
+    """
+    mx, my = x.mean(), y.mean()
+    sxx = np.mean((x - mx) ** 2)
+    syy = np.mean((y - my) ** 2)
+    sxy = np.mean((x - mx) * (y - my))
+    if not np.isfinite(noise_ratio) or sxy == 0:
+        b = sxy / sxx
+    else:
+        d = syy - noise_ratio * sxx
+        b = (d + np.sqrt(d * d + 4.0 * noise_ratio * sxy * sxy)) / (2.0 * sxy)
+    return float(b), float(my - b * mx)
+
+
+def three_cornered_hat(pair_variances: Mapping[tuple[int, int], float], n_sources: int) -> np.ndarray:
+    """Each source's own noise variance from the variances of pairwise differences.
+
+    var(x_i − x_j) = σ_i² + σ_j² for independent noises; with three or more
+    sources the pairs determine every σ² (least squares, clipped at 0). The
+    "three-cornered hat" of frequency-standard comparison (Gray & Allan,
+    1974). Pairs with a NaN variance are left out.
+    """
+    pairs = [(p, v) for p, v in pair_variances.items() if np.isfinite(v)]
+    if not pairs:
+        return np.full(n_sources, np.nan)
+    design = np.zeros((len(pairs), n_sources))
+    for row, ((i, j), _) in enumerate(pairs):
+        design[row, i] = design[row, j] = 1.0
+    solution = np.linalg.lstsq(design, np.array([v for _, v in pairs]), rcond=None)[0]
+    determined = design.sum(axis=0) >= 2
+    return np.where(determined, np.clip(solution, 0.0, None), np.nan)

@@ -1,0 +1,231 @@
+"""Wheel-speed features (ratio, jitter, dropouts) and the calibrated wheel references.
+
+Each wheel is compared with the other wheels only, never with the yaw sensor,
+so a yaw-sensor fault cannot move a wheel feature. The relative rolling radius
+of each wheel is calibrated on straight cruise (as indirect tyre-pressure
+monitors do) and that calibration feeds only the wheel *references* for yaw
+and acceleration; the ratio features themselves are uncalibrated, or they
+would hide the tyre they exist to find.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from features.kinematics import front_axle_yaw_rate, rear_axle_yaw_rate, wheel_path_factors
+from features.row import FeatureRow
+from features.signals import (
+    TripArrays,
+    count_events,
+    median_of_four,
+    moving_mean,
+    robust_spread,
+    seconds,
+    three_cornered_hat,
+    window_samples,
+)
+from features.spec import VehicleSpec
+from features.windows import Windows
+from tracktrue.schema import POSITIONS
+from tracktrue.units import DEG_RAD
+
+#: Straight cruise needed to calibrate relative radii.
+CALIBRATION_MIN_S = 20.0
+RATIO_MIN_SPEED_MPS = 5.0
+#: Cornering correction is kinematic; above this lateral acceleration tyre slip spoils it.
+RATIO_MAX_LAT_MPS2 = 2.0
+RATIO_MIN_S = 30.0
+JITTER_HIGHPASS_S = 2.0
+JITTER_MIN_RATE_HZ = 2.0
+#: Quantisation alone (step/√12 over speed) above this drowns the jitter a tone ring makes.
+JITTER_MAX_QUANT_PCT = 0.25
+JITTER_MIN_S = 30.0
+#: A wheel "reads zero" below this while the other three roll above ROLLING_MPS.
+DROPOUT_ZERO_MPS = 0.3
+ROLLING_MPS = 2.0
+DROPOUT_MIN_KM = 1.0
+#: The six wheel pairs (indices into POSITIONS).
+WHEEL_PAIRS: tuple[tuple[int, int], ...] = tuple((i, j) for i in range(4) for j in range(i + 1, 4))
+#: A wheel this far from the median of four is a glitch, not a tyre.
+GLITCH_FRAC = 0.1
+#: Front- and rear-axle yaw must agree within this (plus a share of the turn)
+#: before the rear axle serves as a reference: a tone-ring glitch on one wheel
+#: breaks the agreement, a healthy turn does not.
+AXLE_AGREE_RADPS = 1.0 * DEG_RAD
+AXLE_AGREE_FRAC = 0.1
+AXLE_SMOOTH_S = 1.0
+
+
+@dataclass(frozen=True)
+class WheelReference:
+    """Calibrated rear-axle speed and yaw rate; NaN when no calibration was possible."""
+
+    radius_offset: np.ndarray  #: (4,) relative radius of each wheel − 1 (fraction)
+    speed: np.ndarray  #: rear-axle-centre speed from calibrated rear wheels, m/s
+    yaw_rate: np.ndarray  #: (v_rr − v_rl)/track_rear from calibrated wheels, rad/s
+    calibrated_wheels: np.ndarray  #: (4, n) wheel speeds divided by their relative radius
+    axles_agree: np.ndarray  #: front- and rear-axle yaw agree (one wheel's glitch breaks it)
+    reason: str | None  #: why there is no calibration
+
+
+def rolling_everywhere(trip: TripArrays) -> np.ndarray:
+    """No wheel is reading (near) zero: samples usable for wheel-to-wheel comparison."""
+    with np.errstate(invalid="ignore"):
+        return np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
+
+
+def distance_ratios(speeds: np.ndarray) -> np.ndarray:
+    """Each wheel's distance over the mean wheel's distance: Σ v_pos / Σ mean(v), for (4, n) speeds.
+
+    A mean, not a median: a wheel-speed sensor counts teeth, so tooth-spacing
+    errors of a damaged ring cancel over each revolution and the distance
+    stays right, while the median of its lopsided once-per-revolution error
+    is not zero. Samples where any wheel strays more than 10 % from the
+    median of four (spin, lock, a glitch) are left out for all wheels alike.
+    """
+    reference = median_of_four(speeds)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sane = np.all(np.abs(speeds / reference - 1.0) < GLITCH_FRAC, axis=0)
+    kept = speeds[:, sane]
+    return kept.sum(axis=1) / kept.mean(axis=0).sum()
+
+
+def wheel_comparison_window(row: FeatureRow, names, trip: TripArrays, windows: Windows,
+                            min_rate_hz: float, min_s: float) -> np.ndarray | None:
+    """Calm rolling above 5 m/s with no wheel near zero; None (and ``names`` NaN) if too little or too slow."""
+    if not trip.rate_hz >= min_rate_hz:
+        row.nan_all(names, "rate_too_low")
+        return None
+    with np.errstate(invalid="ignore"):
+        usable = windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & rolling_everywhere(trip)
+    if seconds(usable, trip) < min_s:
+        row.nan_all(names, "too_little_rolling")
+        return None
+    return usable
+
+
+def steady_reference_window(trip: TripArrays, windows: Windows, ref: WheelReference) -> np.ndarray:
+    """Calm rolling above 5 m/s where front- and rear-axle yaw agree: the calibrated wheels can serve as a reference."""
+    with np.errstate(invalid="ignore"):
+        return windows.calm & rolling_everywhere(trip) & ref.axles_agree & (ref.speed >= RATIO_MIN_SPEED_MPS)
+
+
+def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelReference:
+    """Relative radius c_pos = distance ratio over straight cruise − 1, and the references built on it."""
+    nan = np.full(trip.n, np.nan)
+    if seconds(windows.cruise, trip) < CALIBRATION_MIN_S:
+        reason = windows.straight_reason or "no_straight_cruise"
+        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), reason)
+    offset = distance_ratios(trip.wheels[:, windows.cruise]) - 1.0
+    calibrated = trip.wheels / (1.0 + offset)[:, None]
+    rl, rr = calibrated[2], calibrated[3]
+    reason = spec.missing("track_rear_m", "track_front_m")
+    if reason:
+        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), reason)
+    width = window_samples(AXLE_SMOOTH_S, trip.rate_hz)
+    rear = moving_mean(rear_axle_yaw_rate(rl, rr, spec.track_rear_m), width)
+    front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
+    with np.errstate(invalid="ignore"):
+        agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
+    return WheelReference(offset, 0.5 * (rl + rr), rear_axle_yaw_rate(rl, rr, spec.track_rear_m),
+                          calibrated, agree, None)
+
+
+def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
+                         windows: Windows, ref: WheelReference) -> None:
+    """wheel_ratio_<pos>_pct = 100 · (Σ u_pos / Σ mean(u) − 1), u_pos = v_pos / f_pos, in %.
+
+    f_pos is the kinematic wheel-path factor of the turn (CHECKS.md wheel paths,
+    features.kinematics.wheel_path_factors) at curvature k = r/v from the
+    *calibrated* rear axle, so turns up to 2 m/s² lateral count as well as
+    straight road. On straight road f = 1 and this is DESIGN.md's v_pos/mean(v)
+    − 1, taken as a distance ratio (see distance_ratios for why not the
+    median). Without the geometry it falls back to straight cruise.
+    Source: wheel speeds only.
+    """
+    names = [f"wheel_ratio_{p}_pct" for p in POSITIONS]
+    if ref.reason and ref.reason.startswith(("no_", "straight")):
+        row.nan_all(names, ref.reason)
+        return
+    if spec.missing("track_front_m", "track_rear_m", "wheelbase_m") is None:
+        # the turn is judged on 1 s means so that one wheel's fast noise neither
+        # enters the correction nor picks the samples
+        width = window_samples(AXLE_SMOOTH_S, trip.rate_hz)
+        yaw, speed = moving_mean(ref.yaw_rate, width), moving_mean(ref.speed, width)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            curvature = yaw / speed
+            usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & rolling_everywhere(trip)
+                      & (np.abs(yaw * speed) < RATIO_MAX_LAT_MPS2))
+        factors = wheel_path_factors(curvature[usable], spec.track_front_m, spec.track_rear_m, spec.wheelbase_m)
+        u = trip.wheels[:, usable] / factors
+    else:
+        usable = windows.cruise
+        u = trip.wheels[:, usable]
+    if seconds(usable, trip) < RATIO_MIN_S:
+        row.nan_all(names, "too_little_rolling")
+        return
+    ratio = distance_ratios(u) - 1.0
+    for name, value in zip(names, ratio):
+        row.set(name, 100.0 * value)
+
+
+def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
+    """wheel_jitter_<pos>_pct = 100 · σ_pos, the pos wheel's own fast relative speed noise, in %.
+
+    For each pair of wheels, hp(v_i / v_j − 1) is the difference of their
+    fast noises (hp: minus a 2 s centred moving mean, which removes turns and
+    tyre radius and keeps the wobble a damaged tone ring or loose sensor
+    makes); its robust variance (1.4826·MAD)² estimates σ_i² + σ_j². The six
+    pairs are solved for the four σ² by least squares: the "three-cornered
+    hat" of clock comparison (Gray & Allan, 1974), so one jittery wheel does
+    not raise its neighbours' values. Source: wheel speeds only. NaN below
+    2 Hz or when the speed resolution alone exceeds 0.25 %.
+    """
+    names = [f"wheel_jitter_{p}_pct" for p in POSITIONS]
+    usable = wheel_comparison_window(row, names, trip, windows, JITTER_MIN_RATE_HZ, JITTER_MIN_S)
+    if usable is None:
+        return
+    typical_speed = float(np.median(windows.speed[usable]))
+    width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
+    w = np.where(usable, trip.wheels, np.nan)
+    pair_var = {}
+    for i, j in WHEEL_PAIRS:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rel = w[i] / w[j] - 1.0
+        pair_var[(i, j)] = robust_spread((rel - moving_mean(rel, width))[usable]) ** 2
+    own_var = three_cornered_hat(pair_var, 4)
+    for pos, name, var in zip(POSITIONS, names, own_var):
+        step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)
+        if np.isfinite(step) and 100.0 * step / (np.sqrt(12.0) * typical_speed) > JITTER_MAX_QUANT_PCT:
+            row.nan(name, "resolution_too_coarse")
+        else:
+            row.set(name, 100.0 * np.sqrt(var))
+
+
+def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float) -> None:
+    """wheel_dropouts_<pos> = 100 · (events with v_pos < 0.3 m/s while the other three exceed 2 m/s) / km.
+
+    Events per 100 km. One wheel at zero while three roll is a sensor or
+    tone-ring fault, not a stopped vehicle (CHECKS.md, common practice).
+    Source: wheel speeds only.
+    """
+    for i, pos in enumerate(POSITIONS):
+        name = f"wheel_dropouts_{pos}"
+        if not np.isfinite(trip.wheels[i]).any():
+            row.nan(name, "signal_missing")
+            continue
+        if not distance_km >= DROPOUT_MIN_KM:
+            row.nan(name, "too_little_distance")
+            continue
+        others = np.delete(trip.wheels, i, axis=0)
+        with np.errstate(invalid="ignore"):
+            dropped = (trip.wheels[i] < DROPOUT_ZERO_MPS) & np.all(others >= ROLLING_MPS, axis=0)
+        row.set(name, 100.0 * count_events(dropped) / distance_km)
+
+
+def trip_distance_km(trip: TripArrays) -> float:
+    """Distance = ∫ median of the four wheel speeds dt, in km."""
+    speed = median_of_four(trip.wheels)
+    return float(np.nansum(speed * trip.dt) / 1000.0)
