@@ -105,6 +105,13 @@ def file_states(con: duckdb.DuckDBPyConnection) -> tuple[dict[str, tuple[str, st
     return by_path, by_hash
 
 
+def registry_vins(con: duckdb.DuckDBPyConnection) -> dict[str, str]:
+    """Upper-case VIN -> vehicle_id for registry rows that give a VIN."""
+    rows = con.execute("SELECT upper(vin), vehicle_id FROM vehicles "
+                       "WHERE spec_source = 'registry' AND vin IS NOT NULL").fetchall()
+    return dict(rows)
+
+
 def trip_owners(con: duckdb.DuckDBPyConnection, trip_ids: list[str]) -> dict[str, str]:
     """trip_id -> source_file for those of the given trips already stored."""
     if not trip_ids:

@@ -1,8 +1,9 @@
 """Column plan: which header feeds which canonical signal, and how to convert it to SI.
 
 Profile rules win over the built-in grammar. A problem with one column
-(missing or unknown unit, a voltage without calibration, a second column for
-the same signal) is a column error: that column is not used, the others are.
+(missing or unknown unit, a voltage without calibration) is a column error:
+that column is not used, the others are. A second column for a signal
+already read (e.g. an analog copy of an accelerometer) is only a warning.
 """
 
 from __future__ import annotations
@@ -45,7 +46,7 @@ class Column:
 @dataclass(frozen=True)
 class ColumnPlan:
     columns: dict[str, Column]  # canonical signal -> column
-    ignored: list[str]  # headers not recognised (warnings)
+    ignored: list[str]  # headers not used: not recognised, or a second column for a signal (warnings)
     errors: list[str]  # column-level errors
 
 
@@ -66,8 +67,8 @@ def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:
             if text:
                 ignored.append(text)
             continue
-        if signal in columns:
-            errors.append(f"column {text!r} also maps to {signal} (already read from {columns[signal].header!r}); not used")
+        if signal in columns:  # the signal is recorded already: a warning, not a column error
+            ignored.append(f"{text} (also {signal}, already read from {columns[signal].header!r})")
             continue
         factor = None
         if grammar.QUANTITY[signal] in grammar.NUMERIC_QUANTITIES:

@@ -8,6 +8,10 @@ Order, first that is present wins (per row, so an empty ID cell falls back):
 4. a ``# vin: <VIN>`` metadata line;
 5. the name of the folder holding the file.
 
+A VIN (3 or 4) that the vehicle registry lists becomes that registry row's
+vehicle_id, so a workshop tool's VIN-only export joins the fleet's own ids;
+an unlisted VIN is itself the id.
+
 Every VIN seen is checked (ISO 3779 check digit via tracktrue.vin); a bad
 one is reported as a warning and still used as given. A vehicle ID is data:
 it never becomes part of a path (sample partitions use
@@ -35,7 +39,7 @@ class Identity:
 
 
 def resolve_identity(n_rows: int, id_col: pa.Array | None, vin_col: pa.Array | None,
-                     metadata: dict[str, str], folder_name: str) -> Identity:
+                     metadata: dict[str, str], folder_name: str, registry_vins: dict[str, str]) -> Identity:
     """Vehicle id per row following the documented order."""
     meta_vehicle = (metadata.get("vehicle") or metadata.get("vehicle id") or "").strip() or None
     meta_vin = (metadata.get("vin") or "").strip() or None
@@ -58,6 +62,12 @@ def resolve_identity(n_rows: int, id_col: pa.Array | None, vin_col: pa.Array | N
     codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64)
     id_list = encoded.dictionary.to_pylist()
     vin_of = _vins_by_vehicle(codes, id_list, vins, meta_vin)
+    if registry_vins:
+        vin_values = set(vin_of.values())
+        mapped = [registry_vins.get(v.upper(), v) if v in vin_values else v for v in id_list]
+        id_list, inverse = np.unique(np.array(mapped, dtype=object), return_inverse=True)
+        codes, id_list = inverse[codes], id_list.tolist()
+        vin_of = {registry_vins.get(v.upper(), k) if k in vin_values else k: v for k, v in vin_of.items()}
     warnings = [p for v in sorted(set(vin_of.values())) if (p := vin_problem(v))]
     return Identity(codes, id_list, vin_of, warnings)
 

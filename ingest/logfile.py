@@ -73,11 +73,15 @@ class LogResult:
         return self.n_rows if self.unusable else len(self.rejects)
 
 
-def read_log(raw: bytes, file_name: str, folder_name: str, profile: Profile, trip_gap_s: float) -> LogResult:
-    """Recognise, convert, validate and split one log (see the module docstring)."""
+def read_log(raw: bytes, file_name: str, folder_name: str, profile: Profile, trip_gap_s: float,
+             registry_vins: dict[str, str] | None = None) -> LogResult:
+    """Recognise, convert, validate and split one log (see the module docstring).
+
+    ``registry_vins`` maps upper-case VINs to the registry's vehicle ids (ingest/identity.py).
+    """
     result = LogResult()
     try:
-        _read(raw, file_name, folder_name, profile, trip_gap_s, result)
+        _read(raw, file_name, folder_name, profile, trip_gap_s, registry_vins or {}, result)
     except FileUnusable as exc:
         problems = "; ".join([str(exc), *result.column_errors])
         return LogResult(n_rows=result.n_rows, unusable=problems, warnings=result.warnings,
@@ -103,13 +107,13 @@ class _Flags:
         self.kinds[kind] += len(idx)
 
 
-def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> None:
+def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: LogResult) -> None:
     log = split_lines(raw)
     result.n_rows = len(log.data_lines)
     plan = plan_columns(log.header, profile)
     result.column_errors = plan.errors
     if plan.ignored:
-        result.warnings.append("columns not recognised, ignored: " + ", ".join(repr(h) for h in plan.ignored))
+        result.warnings.append("columns not used: " + ", ".join(repr(h) for h in plan.ignored))
     cols = plan.columns
     if "time" not in cols:
         raise FileUnusable(f"no time column (header: {', '.join(log.header)[:200]})")
@@ -162,7 +166,8 @@ def _read(raw, file_name, folder_name, profile, gap_s, result: LogResult) -> Non
             switches[sig] = (on, missing)
     dtc = clean_text(parsed.columns[cols["dtc"].index]) if "dtc" in cols else None
 
-    ident = resolve_identity(n, _opt(parsed, cols, "vehicle_id"), _opt(parsed, cols, "vin"), log.metadata, folder_name)
+    ident = resolve_identity(n, _opt(parsed, cols, "vehicle_id"), _opt(parsed, cols, "vin"), log.metadata, folder_name,
+                             registry_vins)
     result.vins = ident.vins
     result.warnings.extend(ident.warnings)
 

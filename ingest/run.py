@@ -149,6 +149,7 @@ class _Run:
     def __init__(self, con, store: Store, profile: Profile, gap_s: float, summary: IngestSummary):
         self.con, self.store, self.profile, self.gap_s, self.summary = con, store, profile, gap_s, summary
         self.by_path, self.by_hash = catalog.file_states(con)
+        self.registry_vins = catalog.registry_vins(con)
         self._reset()
 
     def _reset(self) -> None:
@@ -191,7 +192,7 @@ class _Run:
             self.summary.duplicates.append((key, f"same content as {same}"))
             self._record(key, sha, "duplicate", f"same content as {same}", LogResult())
             return 0
-        result = read_log(raw, path.name, path.parent.name, self.profile, self.gap_s)
+        result = read_log(raw, path.name, path.parent.name, self.profile, self.gap_s, self.registry_vins)
         replacing = prev is not None and prev[1] in ("ingested", "replaced")
         if replacing:
             self.replaced.append(key)
