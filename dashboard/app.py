@@ -5,11 +5,11 @@ import streamlit as st
 st.set_page_config(page_title="tracktrue", page_icon=":material/tire_repair:", layout="wide")
 
 PAGES = [
-    st.Page("pages/triage.py", title="Fleet triage", icon=":material/format_list_numbered:",
+    st.Page("views/triage.py", title="Fleet triage", icon=":material/format_list_numbered:",
             url_path="triage", default=True),
-    st.Page("pages/plan.py", title="Workshop plan", icon=":material/event_available:", url_path="plan"),
-    st.Page("pages/vehicle.py", title="Vehicle record", icon=":material/timeline:", url_path="vehicle"),
-    st.Page("pages/intake.py", title="Log intake", icon=":material/inbox:", url_path="intake"),
+    st.Page("views/plan.py", title="Workshop plan", icon=":material/event_available:", url_path="plan"),
+    st.Page("views/vehicle.py", title="Vehicle record", icon=":material/timeline:", url_path="vehicle"),
+    st.Page("views/intake.py", title="Log intake", icon=":material/inbox:", url_path="intake"),
 ]
 
 st.navigation(PAGES, position="sidebar").run()

@@ -1,71 +1,109 @@
-"""Altair charts with a title on every axis, in the dashboard's own palette."""
+"""Vega-Lite chart specifications with a title on every axis, in the dashboard's own palette.
+
+Plain specification dictionaries drawn with ``st.vega_lite_chart``: the
+same grammar Altair writes, without Altair's per-chart schema validation,
+which cost more than all of a page's queries (benchmarks/bench_dashboard.py).
+The main frame goes in as the chart's data; small overlays (bands, event
+marks) travel inline in their layer.
+"""
 
 from __future__ import annotations
 
-import altair as alt
 import pandas as pd
 
-#: Our palette: slate, teal, amber, plum, moss (series in this order).
+#: Our palette: slate, teal, amber, plum, moss, brick (series in this order).
 SERIES_COLOURS = ["#33658a", "#2a9d8f", "#e9a23b", "#8e5572", "#6a8d3a", "#b5483b"]
 ALERT_COLOUR = "#c0392b"
 BAND_COLOUR = "#9ccfc4"
 HEIGHT = 220
+TIME_AXIS = {"field": "start_time", "type": "temporal", "title": "trip start (UTC)"}
 
 
-def traces(frame: pd.DataFrame, x: str, x_title: str, y_title: str, x_type: str = "Q") -> alt.Chart:
-    """Lines of a long frame (``x``, ``series``, ``value``)."""
-    return (
-        alt.Chart(frame)
-        .mark_line(strokeWidth=1.2)
-        .encode(
-            x=alt.X(f"{x}:{x_type}", title=x_title),
-            y=alt.Y("value:Q", title=y_title),
-            color=alt.Color("series:N", title=None, scale=alt.Scale(range=SERIES_COLOURS),
-                            legend=alt.Legend(orient="top")),
-        )
-        .properties(height=HEIGHT)
-    )
+def _series_colour() -> dict:
+    return {"field": "series", "type": "nominal", "title": None, "scale": {"range": SERIES_COLOURS},
+            "legend": {"orient": "top"}}
 
 
-def event_rules(times: pd.DataFrame, x: str, x_type: str = "Q") -> alt.Chart:
-    """Vertical marks at events (``x``, ``event``), labelled in the tooltip."""
-    return (alt.Chart(times).mark_rule(color=ALERT_COLOUR, strokeDash=[4, 3])
-            .encode(x=f"{x}:{x_type}", tooltip=["event:N", f"{x}:{x_type}"]))
+def _inline(frame: pd.DataFrame) -> dict:
+    """Small overlay data as JSON values (timestamps as ISO text)."""
+    out = frame.copy()
+    for c in out.columns:
+        if pd.api.types.is_datetime64_any_dtype(out[c]):
+            out[c] = out[c].map(lambda t: t.isoformat())
+    return {"values": out.astype(object).where(out.notna(), None).to_dict("records")}
 
 
-def score_history(scores: pd.DataFrame, y_title: str) -> alt.Chart:
-    """Trip scores as points over time with a rolling median line."""
-    base = alt.Chart(scores).encode(x=alt.X("start_time:T", title="trip start (UTC)"))
-    points = base.mark_circle(size=28, color=SERIES_COLOURS[0], opacity=0.55).encode(
-        y=alt.Y("score:Q", title=y_title), tooltip=["start_time:T", "score:Q", "top_feature:N"])
-    trend = base.mark_line(color=SERIES_COLOURS[2], strokeWidth=2).encode(y="trend:Q")
-    return (points + trend).properties(height=HEIGHT)
+def traces(x: str, x_title: str, y_title: str, title: str, marks: pd.DataFrame | None = None) -> dict:
+    """Lines of a long frame (``x`` seconds, ``series``, ``value``), optional event marks at ``x``."""
+    layers = [{"mark": {"type": "line", "strokeWidth": 1.2},
+               "encoding": {"x": {"field": x, "type": "quantitative", "title": x_title},
+                            "y": {"field": "value", "type": "quantitative", "title": y_title,
+                                  "scale": {"zero": False}},
+                            "color": _series_colour()}}]
+    if marks is not None and not marks.empty:
+        layers.append(event_rules(marks, x, "quantitative"))
+    return {"title": title, "height": HEIGHT, "layer": layers,
+            "params": [{"name": "zoom", "select": "interval", "bind": "scales", "encodings": ["x"]}]}
 
 
-def drift_history(drift: pd.DataFrame) -> alt.Chart:
-    """Each drift statistic's CUSUM (the larger side) against its threshold, alarms in red."""
-    base = alt.Chart(drift).encode(x=alt.X("start_time:T", title="trip start (UTC)"))
-    line = base.mark_line(strokeWidth=1.5).encode(
-        y=alt.Y("cusum:Q", title="CUSUM (multiples of the in-control spread)"),
-        color=alt.Color("statistic:N", title=None, scale=alt.Scale(range=SERIES_COLOURS),
-                        legend=alt.Legend(orient="top")))
-    limit = base.mark_line(strokeDash=[6, 3], color=ALERT_COLOUR, strokeWidth=1).encode(
-        y="threshold:Q", detail="statistic:N")
-    alarms = base.transform_filter("datum.alarm").mark_point(color=ALERT_COLOUR, size=40, filled=True).encode(
-        y="cusum:Q", tooltip=["statistic:N", "start_time:T", "cusum:Q", "threshold:Q"])
-    return (line + limit + alarms).properties(height=HEIGHT)
+def event_rules(marks: pd.DataFrame, x: str, x_type: str) -> dict:
+    """A layer of dashed vertical marks at events (``x``, ``event``)."""
+    return {"data": _inline(marks[[x, "event"]]),
+            "mark": {"type": "rule", "color": ALERT_COLOUR, "strokeDash": [4, 3]},
+            "encoding": {"x": {"field": x, "type": x_type},
+                         "tooltip": [{"field": "event", "type": "nominal"}, {"field": x, "type": x_type}]}}
 
 
-def feature_against_band(values: pd.DataFrame, band: dict | None, title: str, y_title: str) -> alt.Chart:
-    """A feature's trip values with the peer group's p05–p95 band and median."""
-    base = alt.Chart(values).encode(x=alt.X("start_time:T", title="trip start (UTC)"))
+def score_history(y_title: str, marks: pd.DataFrame | None = None) -> dict:
+    """Trip scores (``start_time``, ``score``, ``trend``) as points with a rolling-median line."""
+    layers = [
+        {"mark": {"type": "circle", "size": 28, "color": SERIES_COLOURS[0], "opacity": 0.55},
+         "encoding": {"x": TIME_AXIS, "y": {"field": "score", "type": "quantitative", "title": y_title},
+                      "tooltip": [{"field": "start_time", "type": "temporal"},
+                                  {"field": "score", "type": "quantitative", "format": ".3f"},
+                                  {"field": "top_feature", "type": "nominal"}]}},
+        {"mark": {"type": "line", "color": SERIES_COLOURS[2], "strokeWidth": 2},
+         "encoding": {"x": TIME_AXIS, "y": {"field": "trend", "type": "quantitative"}}},
+    ]
+    if marks is not None and not marks.empty:
+        layers.append(event_rules(marks, "start_time", "temporal"))
+    return {"height": HEIGHT, "layer": layers}
+
+
+def drift_history() -> dict:
+    """Each drift statistic's CUSUM (``cusum``, the larger side) against its threshold, alarms in red."""
+    colour = {**_series_colour(), "field": "statistic"}
+    return {"height": HEIGHT, "layer": [
+        {"mark": {"type": "line", "strokeWidth": 1.5},
+         "encoding": {"x": TIME_AXIS, "y": {"field": "cusum", "type": "quantitative", "title": "CUSUM statistic"},
+                      "color": colour}},
+        {"mark": {"type": "line", "strokeDash": [6, 3], "color": ALERT_COLOUR, "strokeWidth": 1},
+         "encoding": {"x": TIME_AXIS, "y": {"field": "threshold", "type": "quantitative"},
+                      "detail": {"field": "statistic", "type": "nominal"}}},
+        {"transform": [{"filter": "datum.alarm"}],
+         "mark": {"type": "point", "color": ALERT_COLOUR, "size": 40, "filled": True},
+         "encoding": {"x": TIME_AXIS, "y": {"field": "cusum", "type": "quantitative"},
+                      "tooltip": [{"field": "statistic", "type": "nominal"}, {"field": "start_time", "type": "temporal"},
+                                  {"field": "cusum", "type": "quantitative", "format": ".2f"},
+                                  {"field": "threshold", "type": "quantitative"}]}},
+    ]}
+
+
+def feature_against_band(values: pd.DataFrame, band: dict | None, y_title: str) -> dict:
+    """A feature's trip values (``start_time``, ``value``) over the peer group's p05–p95 band and median."""
     layers = []
     if band is not None:
         edges = pd.DataFrame({"start_time": [values["start_time"].min(), values["start_time"].max()],
                               "p05": band["p05"], "p50": band["p50"], "p95": band["p95"]})
-        b = alt.Chart(edges).encode(x="start_time:T")
-        layers += [b.mark_area(color=BAND_COLOUR, opacity=0.45).encode(y="p05:Q", y2="p95:Q"),
-                   b.mark_line(color=SERIES_COLOURS[1], strokeDash=[5, 3]).encode(y="p50:Q")]
-    layers.append(base.mark_line(point=True, color=SERIES_COLOURS[0], strokeWidth=1.2).encode(
-        y=alt.Y("value:Q", title=y_title), tooltip=["start_time:T", "value:Q"]))
-    return alt.layer(*layers).properties(height=HEIGHT - 40, title=title)
+        layers += [
+            {"data": _inline(edges), "mark": {"type": "area", "color": BAND_COLOUR, "opacity": 0.45},
+             "encoding": {"x": TIME_AXIS, "y": {"field": "p05", "type": "quantitative"},
+                          "y2": {"field": "p95"}}},
+            {"data": _inline(edges), "mark": {"type": "line", "color": SERIES_COLOURS[1], "strokeDash": [5, 3]},
+             "encoding": {"x": TIME_AXIS, "y": {"field": "p50", "type": "quantitative"}}},
+        ]
+    layers.append({"mark": {"type": "line", "point": True, "color": SERIES_COLOURS[0], "strokeWidth": 1.2},
+                   "encoding": {"x": TIME_AXIS, "y": {"field": "value", "type": "quantitative", "title": y_title},
+                                "tooltip": [{"field": "start_time", "type": "temporal"},
+                                            {"field": "value", "type": "quantitative", "format": ".3f"}]}})
+    return {"height": HEIGHT - 40, "layer": layers}

@@ -106,13 +106,17 @@ def has_columns(store: Store, name: str) -> set[str]:
     return set() if isinstance(result, Missing) else set(result.columns)
 
 
-@st.cache_data(show_spinner=False, max_entries=64)
-def trip_samples(root: str, sample_file: str, trip_id: str) -> pd.DataFrame:
-    """One trip's canonical samples; part files are immutable, so path and id are the key."""
-    path = Path(root) / sample_file
+def read_trip_samples(root: str, sample_file: str, trip_id: str) -> pd.DataFrame:
+    """One trip's canonical samples, ordered by time (uncached)."""
     con = duckdb.connect(":memory:")
     try:
         return con.execute("SELECT * FROM read_parquet(?) WHERE trip_id = ? ORDER BY time",
-                           [str(path), trip_id]).df()
+                           [str(Path(root) / sample_file), trip_id]).df()
     finally:
         con.close()
+
+
+@st.cache_data(show_spinner=False, max_entries=64)
+def trip_samples(root: str, sample_file: str, trip_id: str) -> pd.DataFrame:
+    """Cached samples; part files are immutable, so path and id are the whole key."""
+    return read_trip_samples(root, sample_file, trip_id)

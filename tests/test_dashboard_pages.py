@@ -22,7 +22,7 @@ from test_dashboard_plan_rules import check_rfc5545_lines, unfold
 from tracktrue.store import STORE_ENV, Store
 
 APP = Path(dashboard.__file__).with_name("app.py")
-PAGES = ("pages/triage.py", "pages/plan.py", "pages/vehicle.py", "pages/intake.py")
+PAGES = ("views/triage.py", "views/plan.py", "views/vehicle.py", "views/intake.py")
 
 
 @pytest.fixture(scope="module")
@@ -49,7 +49,7 @@ def open_page(page: str | None = None) -> AppTest:
 
 
 def triage_vehicles(at: AppTest) -> list[str]:
-    return at.dataframe[0].value["vehicle"].tolist()
+    return at.dataframe[0].value["Vehicle"].tolist()
 
 
 def tick(at: AppTest, rows: list[int]) -> AppTest:
@@ -93,12 +93,12 @@ def test_triage_counts_each_status_and_shows_the_safety_caution(store):
 def test_triage_filters_narrow_the_table_to_the_chosen_values(store):
     at = open_page()
     at.multiselect(key="filter_status").set_value(["inspect", "lamp_lit"]).run()
-    assert sorted(at.dataframe[0].value["status"]) == ["Inspect", "Lamp lit"]
+    assert sorted(at.dataframe[0].value["Status"]) == ["Inspect", "Lamp lit"]
     at.multiselect(key="filter_status").set_value([]).run()
     at.multiselect(key="filter_platform").set_value(["pickup"]).run()
     at.multiselect(key="filter_depot").set_value(["Harbour"]).run()
     frame = at.dataframe[0].value
-    assert len(frame) > 0 and set(frame["platform"]) == {"pickup"} and set(frame["depot"]) == {"Harbour"}
+    assert len(frame) > 0 and set(frame["Platform"]) == {"pickup"} and set(frame["Depot"]) == {"Harbour"}
     at.multiselect(key="filter_platform").set_value([]).run()
     at.multiselect(key="filter_depot").set_value([]).run()
     at.multiselect(key="filter_suspected_component").set_value(["wheel_sensor_rl"]).run()
@@ -130,9 +130,9 @@ def test_plan_page_moves_entries_only_onto_free_working_days_and_exports_parse(s
     status = store.read_table("vehicle_status")
     picked = status.head(5)[["vehicle_id", "depot", "rank"]]
     planner.add_vehicles(store, picked, dt.date(2026, 3, 2))
-    at = open_page("pages/plan.py")
+    at = open_page("views/plan.py")
     assert SAFETY_CAUTION in texts(at.warning)
-    assert at.dataframe[0].value["vehicle"].tolist() == workshop.open_plan(store)["vehicle_id"].tolist()
+    assert at.dataframe[0].value["Vehicle"].tolist() == workshop.open_plan(store)["vehicle_id"].tolist()
     first = workshop.open_plan(store).iloc[0]
     at.selectbox(key="move_entry").set_value(int(first["id"]))
     at.date_input(key="move_date").set_value(dt.date(2026, 3, 7)).run()  # a Saturday
@@ -157,7 +157,7 @@ def test_plan_page_moves_entries_only_onto_free_working_days_and_exports_parse(s
 def test_an_outcome_recorded_on_the_plan_page_survives_a_restart_and_shows_in_the_history(store):
     planner.add_vehicles(store, store.read_table("vehicle_status").head(2)[["vehicle_id", "depot", "rank"]],
                          dt.date(2026, 3, 2))
-    at = open_page("pages/plan.py")
+    at = open_page("views/plan.py")
     at.selectbox(key="outcome_vehicle").set_value("TT-001")
     at.date_input(key="outcome_date").set_value(dt.date(2026, 3, 3))
     at.radio(key="outcome_kind").set_value("fault_found").run()
@@ -166,7 +166,7 @@ def test_an_outcome_recorded_on_the_plan_page_survives_a_restart_and_shows_in_th
     at.button(key="save_outcome").click().run()
     assert not at.exception
 
-    restarted = open_page("pages/vehicle.py")  # a new session: state only from the file
+    restarted = open_page("views/vehicle.py")  # a new session: state only from the file
     restarted.selectbox(key="vehicle_pick").set_value("TT-001").run()
     history = frame_with(restarted, "outcome")
     assert history[["outcome", "component", "note"]].values.tolist() == [
@@ -175,7 +175,7 @@ def test_an_outcome_recorded_on_the_plan_page_survives_a_restart_and_shows_in_th
 
 
 def test_vehicle_record_draws_every_trace_with_units_on_its_axes(store):
-    at = open_page("pages/vehicle.py")
+    at = open_page("views/vehicle.py")
     at.selectbox(key="vehicle_pick").set_value("TT-001").run()
     specs = [json.loads(c.proto.spec) for c in at.get("vega_lite_chart")]
     titles = json.dumps(specs)
@@ -186,7 +186,7 @@ def test_vehicle_record_draws_every_trace_with_units_on_its_axes(store):
 
 
 def test_intake_lists_rejections_and_the_vehicle_that_went_quiet(store):
-    at = open_page("pages/intake.py")
+    at = open_page("views/intake.py")
     assert {m.label: m.value for m in at.metric}["Rows rejected"] == "3"
     reasons = frame_with(at, "rows_rejected")
     assert reasons.set_index("reason")["rows_rejected"].to_dict()["time goes backwards"] == 2

@@ -1,7 +1,6 @@
 """Vehicle record: score and drift over time, implicated features against the healthy band,
 lamp and trouble-code events, workshop history, the trip table and one trip's traces."""
 
-import altair as alt
 import pandas as pd
 import streamlit as st
 
@@ -84,11 +83,9 @@ st.subheader("Score over time")
 scores = table_or_note(store, "SELECT * FROM {trip_scores} WHERE vehicle_id = ? ORDER BY start_time", [vehicle])
 if scores is not None and not scores.empty:
     scores = scores.assign(trend=scores["score"].rolling(7, min_periods=1).median())
-    chart = charts.score_history(scores, "trip score (higher = more unusual)")
-    if not marks.empty:
-        chart = chart + charts.event_rules(marks, "start_time", "T")
-    st.altair_chart(chart, width="stretch")
-    st.caption("Points: each trip's score against the fleet; orange: 7-trip median. "
+    st.vega_lite_chart(scores[["start_time", "score", "trend", "top_feature"]],
+                       charts.score_history("trip score", marks), width="stretch")
+    st.caption("Points: each trip's score against the fleet (higher is more unusual); orange: 7-trip median. "
                "Red dashed lines: lamp / trouble-code events and inspections.")
 elif scores is not None:
     st.caption("No scored trips for this vehicle.")
@@ -99,7 +96,8 @@ if isinstance(drift, Missing):
 elif not drift.empty:
     drift = drift.assign(cusum=drift[["cusum_hi", "cusum_lo"]].abs().max(axis=1), alarm=drift["alarm"].astype(bool))
     st.markdown("**Drift detector** (alert when a line crosses its dashed threshold)")
-    st.altair_chart(charts.drift_history(drift), width="stretch")
+    st.vega_lite_chart(drift[["start_time", "statistic", "cusum", "threshold", "alarm"]], charts.drift_history(),
+                       width="stretch")
 
 # ---- implicated features against the healthy band ----------------------------
 st.subheader("Implicated features")
@@ -121,8 +119,8 @@ if scores is not None and not scores.empty:
         grid = st.columns(min(len(chosen), 3))
         for i, name in enumerate(chosen):
             frame = values[["start_time", name]].rename(columns={name: "value"})
-            grid[i % len(grid)].altair_chart(
-                charts.feature_against_band(frame, bands.get(name), name, f"{name} ({feature_unit(name)})"),
+            grid[i % len(grid)].vega_lite_chart(
+                frame, charts.feature_against_band(frame, bands.get(name), f"{name} ({feature_unit(name)})"),
                 width="stretch")
         st.caption(f"Shaded: the healthy band (5th–95th percentile) of peer group {peer_group}; dashed: its median.")
 
@@ -179,7 +177,4 @@ for (key, title, y_title), col in zip(PANELS, st.columns(2) * 2):
     if frames[key].empty:
         col.caption(f"{title}: signals not logged on this trip.")
         continue
-    chart = charts.traces(frames[key], "t_s", X_TITLE, y_title).properties(title=title)
-    if not trip_marks.empty:
-        chart = chart + charts.event_rules(trip_marks, "t_s")
-    col.altair_chart(alt.layer(chart).interactive(bind_y=False), width="stretch")
+    col.vega_lite_chart(frames[key], charts.traces("t_s", X_TITLE, y_title, title, trip_marks), width="stretch")

@@ -6,7 +6,10 @@ import streamlit as st
 from dashboard.common import current_store, table_or_note
 from dashboard.tables import has_columns
 
-FILES_SQL = "SELECT * FROM {ingested_files} ORDER BY ingested_at DESC"
+FILE_COUNTS_SQL = ("SELECT status, count(*) AS files, coalesce(sum(n_rejected), 0) AS rows_rejected "
+                   "FROM {ingested_files} GROUP BY status ORDER BY status")
+FILES_SQL = ("SELECT * EXCLUDE (sha256) FROM {ingested_files} WHERE list_contains(?, status) "
+             "ORDER BY ingested_at DESC LIMIT 1000")
 REJECT_REASONS_SQL = ("SELECT reason, count(*) AS rows_rejected, count(DISTINCT source_file) AS files "
                       "FROM {rejects} GROUP BY reason ORDER BY rows_rejected DESC")
 REJECTS_SQL = "SELECT source_file, row, reason FROM {rejects} ORDER BY source_file, row LIMIT 1000"
@@ -27,20 +30,21 @@ st.title("Log intake")
 
 # ---- files ---------------------------------------------------------------------
 st.subheader("Files")
-files = table_or_note(store, FILES_SQL)
-if files is not None:
-    by_status = files["status"].value_counts()
-    cols = st.columns(max(1, len(by_status)) + 1)
-    cols[0].metric("Rows rejected", int(files["n_rejected"].fillna(0).sum()))
-    for col, (state, n) in zip(cols[1:], by_status.items()):
+counts = table_or_note(store, FILE_COUNTS_SQL)
+if counts is not None:
+    cols = st.columns(len(counts) + 1)
+    cols[0].metric("Rows rejected", int(counts["rows_rejected"].sum()))
+    for col, state, n in zip(cols[1:], counts["status"], counts["files"]):
         col.metric(f"Files {state}", int(n))
-    states = sorted(files["status"].dropna().unique())
+    states = counts["status"].dropna().tolist()
     pick = st.multiselect("Show files whose status is", states, key="intake_status",
                           default=[s for s in states if s != "ingested"] or states)
-    st.dataframe(files.loc[files["status"].isin(pick)], hide_index=True, width="stretch", height=280,
+    files = table_or_note(store, FILES_SQL, [pick])
+    st.dataframe(files, hide_index=True, width="stretch", height=min(36 * (len(files) + 1) + 4, 320),
                  key="intake_files",
-                 column_config={"sha256": None,
-                                "ingested_at": st.column_config.DatetimeColumn(format="YYYY-MM-DD HH:mm")})
+                 column_config={"ingested_at": st.column_config.DatetimeColumn(format="YYYY-MM-DD HH:mm")})
+    if len(files) == 1000:
+        st.caption("The newest 1,000 files of these statuses are shown.")
 
 st.subheader("Rejected rows")
 reasons = table_or_note(store, REJECT_REASONS_SQL)
@@ -73,7 +77,8 @@ if coverage is not None:
             st.warning(f"{len(quiet)} vehicle(s) sent no log in the last {quiet_days} days; "
                        "they cannot be ranked on fresh data.")
             st.dataframe(quiet[["vehicle_id", "platform", "depot", "last_trip", "days_quiet", "trips"]],
-                         hide_index=True, width="stretch", key="intake_quiet")
+                         hide_index=True, width="stretch", key="intake_quiet",
+                         column_config={"last_trip": st.column_config.DatetimeColumn(format="YYYY-MM-DD HH:mm")})
     coverage["trips_per_day"] = (coverage["trips"] / coverage["days_with_trips"].where(lambda d: d > 0)).round(2)
     st.dataframe(coverage, hide_index=True, width="stretch", height=320, key="intake_coverage",
                  column_config={"first_trip": st.column_config.DatetimeColumn(format="YYYY-MM-DD"),

@@ -55,18 +55,18 @@ if plan.empty:
 else:
     detail = planner.with_status(plan, status)
     view = pd.DataFrame({
-        "date": detail["planned_date"],
-        "day": [d.strftime("%a") for d in detail["planned_date"]],
-        "depot": detail["depot"],
-        "vehicle": detail["vehicle_id"],
-        "priority": detail["priority"],
-        "status": detail["status"].map(STATUS_LABELS),
-        "suspected component": detail["suspected_component"].map(component_label),
-        "what to check": detail["suggestion"],
-        "moved by hand": detail["pinned"],
+        "Date": detail["planned_date"],
+        "Day": [d.strftime("%a") for d in detail["planned_date"]],
+        "Depot": detail["depot"],
+        "Vehicle": detail["vehicle_id"],
+        "Priority": detail["priority"],
+        "Status": detail["status"].map(STATUS_LABELS),
+        "Suspected component": detail["suspected_component"].map(component_label),
+        "What to check": detail["suggestion"],
+        "Moved by hand": detail["pinned"],
     })
     st.dataframe(view, key="plan_table", hide_index=True, width="stretch",
-                 column_config={"date": st.column_config.DateColumn("Date", format="YYYY-MM-DD")})
+                 column_config={"Date": st.column_config.DateColumn(format="YYYY-MM-DD")})
 
     st.subheader("Move or remove an entry")
     labels = {int(r.id): f"{r.vehicle_id} — {r.planned_date:%a %d %b} at {r.depot}" for r in plan.itertuples()}

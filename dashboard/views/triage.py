@@ -49,29 +49,28 @@ if ranking is not None:
     plan = workshop.open_plan(store)
     planned = dict(zip(plan["vehicle_id"], plan["planned_date"]))
     view = pd.DataFrame({
-        "rank": shown["rank"],
-        "vehicle": shown["vehicle_id"],
-        "platform": shown["platform"],
-        "depot": shown["depot"],
-        "status": shown["status"].map(STATUS_LABELS),
-        "suspected component": shown["suspected_component"].map(component_label),
-        "evidence": shown["evidence"],
-        "flagged since": shown["flagged_since"],
-        "last trip": shown["last_trip"],
-        "score": shown["score"],
-        "planned for": shown["vehicle_id"].map(planned),
+        "Rank": shown["rank"],
+        "Vehicle": shown["vehicle_id"],
+        "Platform": shown["platform"],
+        "Depot": shown["depot"].fillna("—"),
+        "Status": shown["status"].map(STATUS_LABELS),
+        "Suspected component": shown["suspected_component"].map(component_label),
+        "Evidence": shown["evidence"],
+        "Flagged since": pd.to_datetime(shown["flagged_since"]).dt.strftime("%Y-%m-%d").fillna(""),
+        "Last trip": shown["last_trip"],
+        "Score": shown["score"],
+        "Planned for": shown["vehicle_id"].map(planned),
     }).reset_index(drop=True)
-    st.caption(f"{len(view)} of {len(ranking)} vehicles shown. Tick rows to plan or open them.")
+    st.caption(f"{len(view)} of {len(ranking)} vehicles shown. Tick rows to plan them or open one.")
     event = st.dataframe(
         view, key="triage_table", on_select="rerun", selection_mode="multi-row", hide_index=True,
-        width="stretch", height=min(38 * (len(view) + 1), 560),
+        width="stretch", height=min(36 * (len(view) + 1) + 4, 600),
         column_config={
-            "rank": st.column_config.NumberColumn("Rank", width="small"),
-            "score": st.column_config.NumberColumn("Score", format="%.2f", width="small"),
-            "flagged since": st.column_config.DateColumn("Flagged since"),
-            "last trip": st.column_config.DatetimeColumn("Last trip", format="YYYY-MM-DD HH:mm"),
-            "planned for": st.column_config.DateColumn("Planned for"),
-            "evidence": st.column_config.TextColumn("Evidence", width="large"),
+            "Rank": st.column_config.NumberColumn(width="small"),
+            "Score": st.column_config.NumberColumn(format="%.2f", width="small"),
+            "Last trip": st.column_config.DatetimeColumn(format="YYYY-MM-DD HH:mm"),
+            "Planned for": st.column_config.DateColumn(format="ddd YYYY-MM-DD"),
+            "Evidence": st.column_config.TextColumn(width="large"),
         })
     picked = shown.iloc[event.selection.rows] if event.selection.rows else shown.iloc[0:0]
 
@@ -88,4 +87,4 @@ if ranking is not None:
         st.rerun()
     if right.button("Open vehicle record", key="open_vehicle", disabled=len(picked) != 1):
         st.session_state[PICKED_VEHICLE] = picked["vehicle_id"].iloc[0]
-        st.switch_page("pages/vehicle.py")
+        st.switch_page("views/vehicle.py")
