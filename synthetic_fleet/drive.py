@@ -70,42 +70,44 @@ class DriveTrace:
     parked: np.ndarray  # parking standstill at trip start and end
 
 
-def _u(rng: np.random.Generator, lo_hi: tuple[float, float], n: int) -> np.ndarray:
-    return rng.uniform(lo_hi[0], lo_hi[1], n)
-
-
 def _section_phases(style: RoadStyle, budget_s: float, v0: float, rng: np.random.Generator):
     """Phases (duration_s, end_speed_mps, curvature_1pm) of one road section, and its exit speed."""
     mean_leg = np.mean(style.cruise_s) + style.stop_prob * np.mean(style.stop_s) + 15.0
     n = int(3 * budget_s / mean_leg) + 5
-    vc = _u(rng, style.cruise_mps, n)
-    entry = rng.choice(3, size=n, p=[style.stop_prob, style.roundabout_prob,
-                                     1 - style.stop_prob - style.roundabout_prob])
-    stop, roundabout = entry == 0, entry == 1
+    u = iter(rng.random((21, n)))  # one draw for all the legs' random choices
+
+    def between(lo_hi: tuple[float, float]) -> np.ndarray:
+        return lo_hi[0] + (lo_hi[1] - lo_hi[0]) * next(u)
+
+    def sign() -> np.ndarray:
+        return np.where(next(u) < 0.5, -1.0, 1.0)
+
+    vc = between(style.cruise_mps)
+    entry = next(u)
+    stop = entry < style.stop_prob
+    roundabout = ~stop & (entry < style.stop_prob + style.roundabout_prob)
     stop[0], roundabout[0] = v0 <= 0.0, False
     # Speed at each leg's entry: 0 at a stop, the roundabout speed, or a slow-down.
-    r_turn = rng.uniform(7.0, 18.0, n)
-    r_round = rng.uniform(12.0, 26.0, n)
-    v_round = np.sqrt(rng.uniform(1.4, 2.4, n) * r_round)
-    v_slow = rng.uniform(0.6, 0.95, n) * np.roll(vc, 1)
+    r_turn = between((7.0, 18.0))
+    r_round = between((12.0, 26.0))
+    v_round = np.sqrt(between((1.4, 2.4)) * r_round)
+    v_slow = between((0.6, 0.95)) * np.roll(vc, 1)
     v_entry = np.where(stop, 0.0, np.where(roundabout, v_round, v_slow))
     v_entry[0] = max(v0, 0.0)
-    turn = stop & (rng.random(n) < style.turn_prob)
-    v_turn = np.minimum(np.sqrt(rng.uniform(1.5, 2.8, n) * r_turn), 6.0)
-    turn_sign = rng.choice([-1.0, 1.0], n)
+    turn = stop & (next(u) < style.turn_prob)
+    v_turn = np.minimum(np.sqrt(between((1.5, 2.8)) * r_turn), 6.0)
     # Phase 1: hold at a stop. Phase 2: intersection turn or roundabout.
-    hold_s = np.where(stop, _u(rng, style.stop_s, n), 0.0)
-    entry_s = np.where(turn, rng.uniform(4.0, 8.0, n), np.where(roundabout, rng.uniform(5.0, 14.0, n), 0.0))
+    hold_s = np.where(stop, between(style.stop_s), 0.0)
+    entry_s = np.where(turn, between((4.0, 8.0)), np.where(roundabout, between((5.0, 14.0)), 0.0))
     v_after_entry = np.where(turn, v_turn, v_entry)
-    kappa_entry = np.where(turn, turn_sign / r_turn, np.where(roundabout, 1.0 / r_round, 0.0))
+    kappa_entry = np.where(turn, sign() / r_turn, np.where(roundabout, 1.0 / r_round, 0.0))
     # Phase 3: accelerate; 4-6: cruise with an optional curve; 7: slow into the next entry.
-    accel_s = np.abs(vc - v_after_entry) / _u(rng, style.accel_mps2, n)
-    cruise_s = _u(rng, style.cruise_s, n)
-    curve = rng.random(n) < style.curve_prob
-    curve_s = np.where(curve, rng.uniform(4.0, 20.0, n), 0.0)
-    kappa_curve = rng.choice([-1.0, 1.0], n) * _u(rng, style.curve_lat_accel_mps2, n) / vc**2
+    accel_s = np.abs(vc - v_after_entry) / between(style.accel_mps2)
+    cruise_s = between(style.cruise_s)
+    curve_s = np.where(next(u) < style.curve_prob, between((4.0, 20.0)), 0.0)
+    kappa_curve = sign() * between(style.curve_lat_accel_mps2) / vc**2
     v_next = np.append(v_entry[1:], vc[-1])
-    decel = np.where(rng.random(n) < HARD_BRAKE_SHARE, rng.uniform(3.5, 5.0, n), _u(rng, style.decel_mps2, n))
+    decel = np.where(next(u) < HARD_BRAKE_SHARE, between((3.5, 5.0)), between(style.decel_mps2))
     decel_s = np.abs(vc - v_next) / decel
 
     durations = np.stack([hold_s, entry_s, accel_s, 0.5 * cruise_s, curve_s, 0.5 * cruise_s, decel_s], axis=1)
@@ -145,27 +147,49 @@ def _trip_phases(drive: str, duration_s: float, rng: np.random.Generator):
 
 
 def _boxcar(x: np.ndarray, width_s: float, dt: float) -> np.ndarray:
+    """Centred moving average over ``width_s``, edges held (a running sum, not a search)."""
     n = max(int(round(width_s / dt)), 1)
-    if n == 1:
+    if n == 1 or len(x) == 0:
         return x
-    pad = np.pad(x, (n // 2, n - 1 - n // 2), mode="edge")
-    c = np.cumsum(np.insert(pad, 0, 0.0))
+    padded = np.concatenate((np.full(n // 2 + 1, x[0]), x, np.full(n - 1 - n // 2, x[-1])))
+    padded[0] = 0.0
+    c = np.cumsum(padded)
     return (c[n:] - c[:-n]) / n
 
 
-def _smooth_noise(rng: np.random.Generator, n: int, dt: float, tau_s: float) -> np.ndarray:
-    """Unit-variance low-pass noise with time constant tau (moving average of white noise)."""
-    w = max(int(round(tau_s / dt)), 1)
-    x = _boxcar(rng.standard_normal(n), tau_s, dt)
-    return x * np.sqrt(w)
+def _upsample(coarse: np.ndarray, step: int, n: int) -> np.ndarray:
+    """Linear interpolation of values given at every ``step``-th sample onto all ``n`` samples."""
+    k = np.arange(n)
+    i, frac = np.divmod(k, step)
+    frac = frac / step
+    return coarse[i] * (1.0 - frac) + coarse[np.minimum(i + 1, len(coarse) - 1)] * frac
 
 
-def _road_profile(dist_m: np.ndarray, rng: np.random.Generator, amplitude: float, mean: float) -> np.ndarray:
-    """A smooth road property along distance: a few sinusoids of 250-2500 m wavelength."""
+def _smooth_noise(rng: np.random.Generator, n: int, rate_hz: float, tau_s: float) -> np.ndarray:
+    """Unit-variance low-pass noise with time constant ``tau_s`` (moving average of white noise,
+    drawn once a second: only its slow part matters)."""
+    step = max(int(round(rate_hz)), 1)
+    white = rng.standard_normal(n // step + 2)
+    width = max(int(round(tau_s)), 1)
+    return _upsample(_boxcar(white, tau_s, 1.0) * np.sqrt(width), step, n)
+
+
+def _road_profile(dist_m: np.ndarray, step: int, rng: np.random.Generator, amplitude: float,
+                  mean: float) -> np.ndarray:
+    """A smooth road property along distance: a few sinusoids of 250-2500 m wavelength
+    (evaluated every ``step``-th sample and interpolated between)."""
     lam = rng.uniform(250.0, 2500.0, 3)
     amp = amplitude * rng.uniform(0.3, 1.0, 3)
     phase = rng.uniform(0.0, 2 * np.pi, 3)
-    return mean + (amp * np.sin(2 * np.pi * dist_m[:, None] / lam + phase)).sum(axis=1)
+    coarse = dist_m[::step]
+    values = mean + (amp * np.sin(2 * np.pi * coarse[:, None] / lam + phase)).sum(axis=1)
+    return _upsample(values, step, len(dist_m))
+
+
+def _phase_index(ends_s: np.ndarray, n: int, rate_hz: float) -> np.ndarray:
+    """The phase each sample of the uniform grid falls in (counted, not searched)."""
+    edges = np.minimum(np.ceil(ends_s * rate_hz).astype(np.int64), n)
+    return np.repeat(np.arange(len(ends_s)), np.diff(edges, prepend=0))
 
 
 def drive_trace(drive: str, duration_s: float, rate_hz: float, rng: np.random.Generator,
@@ -180,25 +204,26 @@ def drive_trace(drive: str, duration_s: float, rate_hz: float, rng: np.random.Ge
     dt = 1.0 / rate_hz
     dur, spd, kap, start_hold, end_hold = _trip_phases(drive, duration_s, rng)
     ends = np.cumsum(dur)
-    knots_t = np.concatenate([[0.0], ends])
-    knots_v = np.concatenate([[0.0], spd])
     n = int(ends[-1] * rate_hz)
     t = np.arange(n) * dt
-    v = np.interp(t, knots_t, knots_v)
+    phase = _phase_index(ends, n, rate_hz)
+    v_from = np.concatenate([[0.0], spd[:-1]])
+    frac = (t - (ends - dur)[phase]) / np.maximum(dur, 1e-9)[phase]
+    v = v_from[phase] + (spd - v_from)[phase] * frac
     cruising = v > 3.0
-    v = v * (1.0 + 0.012 * _smooth_noise(rng, n, dt, 8.0) * cruising)
+    v = v * (1.0 + 0.012 * _smooth_noise(rng, n, rate_hz, 8.0) * cruising)
     v = np.maximum(_boxcar(_boxcar(v, SPEED_SMOOTHING_S, dt), SPEED_SMOOTHING_S, dt), 0.0)
     v[v < 0.02] = 0.0
-    kappa = kap[np.minimum(np.searchsorted(ends, t, side="right"), len(kap) - 1)]
-    kappa = _boxcar(kappa, CURVATURE_SMOOTHING_S, dt)
+    kappa = _boxcar(kap[phase], CURVATURE_SMOOTHING_S, dt)
     limit = np.minimum(1.0 / MIN_TURN_RADIUS_M, MAX_LAT_ACCEL_MPS2 / np.maximum(v * v, 1e-6))
     kappa = np.clip(kappa, -limit, limit)
-    accel = np.gradient(v, dt)
+    accel = np.gradient(v, dt) if n > 1 else np.zeros(n)
 
     dist = np.cumsum(v) * dt
-    grade = _road_profile(dist, rng, grade_amplitude, 0.0)
+    step = max(int(round(rate_hz)), 1)
+    grade = _road_profile(dist, step, rng, grade_amplitude, 0.0)
     grade -= np.sum(grade * v) / max(np.sum(v), 1e-9)
-    bank = _road_profile(dist, rng, 0.004, 0.008)
+    bank = _road_profile(dist, step, rng, 0.004, 0.008)
     parked_start = t < start_hold
     parked_end = t >= ends[-1] - end_hold
     grade = np.where(parked_start, park_grade_start, np.where(parked_end, park_grade_end, grade))

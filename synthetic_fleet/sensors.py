@@ -115,38 +115,42 @@ def _tyre_fault_factor(cond: TripCondition, sign: float) -> np.ndarray:
 
 
 def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
-                   centre: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+                   centre: np.ndarray, noise: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """Wheel-speed readings (4, n) from wheel-centre speeds (4, n) and unit normal noise (4, n)."""
     n = len(trace.t_s)
     dt = trace.t_s[1] - trace.t_s[0] if n > 1 else 0.1
     a_g = trace.accel_mps2 / G0_MPS2
-    braking = np.minimum(a_g, 0.0)[:, None] * np.repeat(BRAKE_SLIP_PER_G, 2)[None, :]
-    driven = np.array([1.0, 1.0, 0.0, 0.0]) if spec.driven_axle == "front" else np.array([0.0, 0.0, 1.0, 1.0])
-    traction = np.maximum(a_g, 0.0)[:, None] * TRACTION_SLIP_PER_G * driven[None, :]
+    front, rear = BRAKE_SLIP_PER_G
+    slip = np.minimum(a_g, 0.0)[None, :] * np.array([front, front, rear, rear])[:, None]
+    driven = [0, 1] if spec.driven_axle == "front" else [2, 3]
+    slip[driven] += np.maximum(a_g, 0.0) * TRACTION_SLIP_PER_G
     radius = health.wheel_radius_factor * cond.tyre_factor * _tyre_fault_factor(cond, health.fault_sign)
-    wheels = centre * (1.0 + braking + traction) / radius[None, :]
-    wheels += rng.normal(0.0, 1.0, (n, 4)) * (WHEEL_NOISE_MPS + WHEEL_NOISE_FRAC * centre)
+    # The sensor counts teeth per second; the controller converts with the nominal
+    # radius, so a smaller tyre (or more slip) reads faster.
+    wheels = centre * (1.0 + slip) / radius[:, None] + noise * (WHEEL_NOISE_MPS + WHEEL_NOISE_FRAC * centre)
     if cond.rough_road:
         ripple = rng.standard_normal(n)  # common to all wheels: the body bounces, every wheel sees it
         ripple = np.convolve(ripple, np.ones(3) / np.sqrt(3), mode="same")
-        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[:, None] + ROUGH_WHEEL_FRAC * rng.standard_normal((n, 4))
+        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[None, :] + ROUGH_WHEEL_FRAC * rng.standard_normal((4, n))
     fault = parse_fault(cond.fault) if cond.fault else None
     if fault is not None and fault.kind == "tone_ring" and cond.severity > 0:
         i = POSITIONS.index(fault.position)
-        v = wheels[:, i]
+        v = wheels[i]
         angle = np.cumsum(v) * dt / spec.tyre_radius_m + rng.uniform(0, 2 * np.pi)
         periodic = np.sin(angle) + 0.5 * np.sin(2 * angle + 1.3)
         steps = (rng.random(n) < min(0.3, MAG["tone_ring_step_prob"] * cond.severity)) * rng.standard_normal(n)
-        wheels[:, i] = v * (1.0 + cond.severity * (MAG["tone_ring_error_frac"] * periodic
-                                                   + MAG["tone_ring_step_frac"] * steps))
-    cutoff = np.full(4, CUTOFF_MPS[spec.wheel_sensor_kind])
-    amplitude = np.ones((n, 4))
+        wheels[i] = v * (1.0 + cond.severity * (MAG["tone_ring_error_frac"] * periodic
+                                                + MAG["tone_ring_step_frac"] * steps))
+    np.maximum(wheels, 0.0, out=wheels)
+    wheels[wheels < CUTOFF_MPS[spec.wheel_sensor_kind]] = 0.0
     if fault is not None and fault.kind == "air_gap" and cond.severity > 0:
         # A passive sensor's amplitude grows with speed (common practice): as the
         # gap widens, the speed below which it is too weak to count teeth rises.
         i = POSITIONS.index(fault.position)
-        cutoff[i] += MAG["air_gap_dropout_speed_mps"] * cond.severity**1.2
-        amplitude[:, i] = np.exp(0.12 * rng.standard_normal(n))  # runout of ring and bearing
-    return np.where(wheels * amplitude < cutoff[None, :], 0.0, np.maximum(wheels, 0.0))
+        cutoff = CUTOFF_MPS[spec.wheel_sensor_kind] + MAG["air_gap_dropout_speed_mps"] * cond.severity**1.2
+        runout = np.exp(0.12 * rng.standard_normal(n))  # ring and bearing runout modulate the amplitude
+        wheels[i, wheels[i] * runout < cutoff] = 0.0
+    return wheels
 
 
 def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
@@ -159,7 +163,8 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     road_wheel = road_wheel_angle_for_curvature(v, trace.curvature_1pm, spec.wheelbase_m, k)
     yaw = yaw_rate_single_track(v, road_wheel, spec.wheelbase_m, k)
     centre = wheel_centre_speeds(v, yaw, spec.wheelbase_m, spec.track_front_m, spec.track_rear_m)
-    wheels = _wheel_signals(trace, spec, health, cond, centre, rng)
+    noise = rng.standard_normal((8, n))  # 4 wheels, yaw, steering, 2 accelerometers
+    wheels = _wheel_signals(trace, spec, health, cond, centre, noise[:4], rng)
 
     sensor_c = cond.ambient_c + WARMUP_C * (1.0 - np.exp(-trace.t_s / WARMUP_TAU_S)) - REFERENCE_C
     rough = 1.0 if cond.rough_road else 0.0
@@ -168,10 +173,10 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     yaw_offset_dps = (health.yaw_offset_dps + health.yaw_temp_coeff_dps_per_c * sensor_c
                       + s * _fault_size(cond, "yaw_offset", "yaw_offset_dps"))
     yaw_meas = yaw_gain * yaw + DEG_RAD * (
-        yaw_offset_dps + rng.normal(0.0, 1.0, n) * (YAW_NOISE_DPS + rough * ROUGH_YAW_DPS))
+        yaw_offset_dps + noise[4] * (YAW_NOISE_DPS + rough * ROUGH_YAW_DPS))
 
     steer_offset_deg = health.steer_offset_deg + s * _fault_size(cond, "steer_offset", "steer_offset_deg")
-    steer = spec.steering_ratio * road_wheel + DEG_RAD * (steer_offset_deg + rng.normal(0.0, STEER_NOISE_DEG, n))
+    steer = spec.steering_ratio * road_wheel + DEG_RAD * (steer_offset_deg + STEER_NOISE_DEG * noise[5])
 
     # Accelerometers measure specific force: gravity along the tilted body axes
     # adds g·sin(grade + nose-up pitch) to a_x and g·sin(bank) to a_y.
@@ -179,15 +184,15 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     offset_g = health.accel_offset_g[:, None] + health.accel_temp_coeff_g_per_c[:, None] * sensor_c[None, :]
     offset_g[0] += s * _fault_size(cond, "accel_long_offset", "accel_long_offset_g")
     offset_g[1] += s * _fault_size(cond, "accel_lat_offset", "accel_lat_offset_g")
-    noise = rng.normal(0.0, 1.0, (2, n)) * (ACCEL_NOISE_MPS2 + rough * ROUGH_ACCEL_MPS2)
-    accel_long = trace.accel_mps2 + G0_MPS2 * (np.sin(trace.grade_rad + nose_up) + offset_g[0]) + noise[0]
-    accel_lat = v * yaw + G0_MPS2 * (np.sin(trace.bank_rad) + offset_g[1]) + noise[1]
+    accel_noise = noise[6:] * (ACCEL_NOISE_MPS2 + rough * ROUGH_ACCEL_MPS2)
+    accel_long = trace.accel_mps2 + G0_MPS2 * (np.sin(trace.grade_rad + nose_up) + offset_g[0]) + accel_noise[0]
+    accel_lat = v * yaw + G0_MPS2 * (np.sin(trace.bank_rad) + offset_g[1]) + accel_noise[1]
 
     # The controller's vehicle speed: mean of the middle two wheels, robust to one bad wheel.
-    middle = np.sort(wheels, axis=1)[:, 1:3].mean(axis=1)
+    middle = 0.5 * (wheels.sum(axis=0) - wheels.max(axis=0) - wheels.min(axis=0))
     return {
-        "wheel_speed_fl": wheels[:, 0], "wheel_speed_fr": wheels[:, 1],
-        "wheel_speed_rl": wheels[:, 2], "wheel_speed_rr": wheels[:, 3],
+        "wheel_speed_fl": wheels[0], "wheel_speed_fr": wheels[1],
+        "wheel_speed_rl": wheels[2], "wheel_speed_rr": wheels[3],
         "vehicle_speed": middle, "yaw_rate": yaw_meas, "steering_angle": steer,
         "accel_long": accel_long, "accel_lat": accel_lat, "brake": trace.brake.copy(),
     }

@@ -32,7 +32,7 @@ def road_wheel_angle_for_curvature(speed_mps, curvature_1pm, wheelbase_m: float,
 
 def wheel_centre_speeds(speed_mps, yaw_rate_rps, wheelbase_m: float, track_front_m: float,
                         track_rear_m: float) -> np.ndarray:
-    """Ground speed of each wheel centre (fl, fr, rl, rr), shape (n, 4), m/s.
+    """Ground speed of each wheel centre (fl, fr, rl, rr), shape (4, n), m/s.
 
     ``speed_mps`` is the rear-axle centre's speed. With R = v/r the turn radius
     to the rear-axle centre, the rear wheels move at r·(R ∓ t/2) = v ∓ r·t/2 and
@@ -47,4 +47,4 @@ def wheel_centre_speeds(speed_mps, yaw_rate_rps, wheelbase_m: float, track_front
     rr = v + r * half_r
     fl = np.hypot(v - r * half_f, r * wheelbase_m)
     fr = np.hypot(v + r * half_f, r * wheelbase_m)
-    return np.stack([fl, fr, rl, rr], axis=1)
+    return np.stack([fl, fr, rl, rr])

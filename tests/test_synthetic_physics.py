@@ -58,7 +58,7 @@ def test_wheel_paths_follow_rigid_body_kinematics():
     # CHECKS.md: rear wheels r·(R ∓ t/2), front wheels r·√(L² + (R ∓ t/2)²), R to the rear-axle centre.
     L, tf, tr, R, v = 3.0, 1.6, 1.5, 25.0, 10.0
     r = v / R
-    fl, fr, rl, rr = wheel_centre_speeds(np.array([v]), np.array([r]), L, tf, tr)[0]
+    fl, fr, rl, rr = wheel_centre_speeds(np.array([v]), np.array([r]), L, tf, tr)[:, 0]
     assert rl == pytest.approx(r * (R - tr / 2)) and rr == pytest.approx(r * (R + tr / 2))
     assert fl == pytest.approx(r * np.hypot(L, R - tf / 2)) and fr == pytest.approx(r * np.hypot(L, R + tf / 2))
     # CHECKS.md worked example: 19.8 and 20.2 m/s on a 1.5 m track → 0.26667 rad/s.
