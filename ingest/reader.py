@@ -36,7 +36,7 @@ class FileUnusable(Exception):
 class LogText:
     """A decoded log split into lines: metadata, header and data lines."""
 
-    data: bytes  # UTF-8
+    data: bytes  # UTF-8, line ends normalised to LF
     encoding: str
     delimiter: str
     header: list[str]
@@ -45,7 +45,17 @@ class LogText:
     data_lines: np.ndarray  # 1-based line numbers of data lines (blank/comment lines excluded)
     line_starts: np.ndarray
     line_stops: np.ndarray  # exclusive, including the newline
-    field_counts: np.ndarray | None  # per data line; None when quotes make counting unsafe
+
+    @property
+    def quoted(self) -> bool:
+        return b'"' in self.data[self.line_stops[self.header_line - 1]:]
+
+    def field_counts(self, lines: np.ndarray) -> np.ndarray:
+        """Fields per given line by counting delimiters (valid only when nothing is quoted)."""
+        buf = np.frombuffer(self.data, np.uint8)
+        dsum = np.concatenate(([0], np.cumsum(buf == ord(self.delimiter), dtype=np.int64)))
+        idx = lines - 1
+        return dsum[self.line_stops[idx]] - dsum[self.line_starts[idx]] + 1
 
 
 @dataclass(frozen=True)
@@ -87,8 +97,12 @@ def _control_fraction(head: bytes) -> float:
 
 
 def split_lines(raw: bytes) -> LogText:
-    """Decode, find the header, metadata lines and data lines."""
-    if not raw.strip():
+    """Decode, find the header, metadata lines and data lines.
+
+    Only short lines can be blank or delimiter-only, so only their bytes are
+    inspected; a long line is a data line unless it starts with ``#``.
+    """
+    if not raw or raw.isspace():  # isspace stops at the first other byte: no copy of the file
         raise FileUnusable("empty file")
     data, encoding = decode(raw)
     if b"\r" in data:  # CRLF, or a lone CR (old Mac line ends): both end a line
@@ -99,11 +113,9 @@ def split_lines(raw: bytes) -> LogText:
     stops = np.concatenate((newlines + 1, [len(buf)]))
     if starts[-1] == len(buf):  # file ends with a newline: no last empty line
         starts, stops = starts[:-1], stops[:-1]
-    first = buf[np.minimum(starts, len(buf) - 1)]
-    is_comment = first == ord("#")
-    blankish = np.isin(buf, np.frombuffer(b" \t\r\n", np.uint8))
-    header_idx = _first_header(buf, starts, stops, is_comment, blankish)
-    header_text = data[starts[header_idx]:stops[header_idx]].decode("utf-8").rstrip("\r\n")
+    is_comment = buf[starts] == ord("#")
+    header_idx = _first_header(data, starts, stops, is_comment)
+    header_text = data[starts[header_idx]:stops[header_idx]].decode("utf-8").rstrip("\n")
     delimiter = _sniff_delimiter(header_text)
     try:
         header = next(csv.reader([header_text], delimiter=delimiter))
@@ -113,30 +125,37 @@ def split_lines(raw: bytes) -> LogText:
     if len(header) < 2:
         raise FileUnusable(f"header line {header_idx + 1} has a single column ({header_text[:80]!r}); "
                            "expected comma-, semicolon- or tab-separated columns")
-    content = ~(blankish | (buf == ord(delimiter)))
-    csum = np.concatenate(([0], np.cumsum(content, dtype=np.int64)))
-    has_content = (csum[stops] - csum[starts]) > 0
     after = np.arange(len(starts)) > header_idx
-    is_data = after & has_content & ~is_comment
+    is_data = after & ~is_comment & _has_content(buf, starts, stops, after & ~is_comment, delimiter, len(header))
     metadata = _metadata(data, starts, stops, np.flatnonzero(is_comment))
-    quoted = b'"' in data[stops[header_idx]:] if header_idx + 1 < len(starts) else False
-    field_counts = None
-    if not quoted:
-        dsum = np.concatenate(([0], np.cumsum(buf == ord(delimiter), dtype=np.int64)))
-        field_counts = (dsum[stops] - dsum[starts] + 1)[is_data]
     return LogText(
         data=data, encoding=encoding, delimiter=delimiter, header=header, metadata=metadata,
         header_line=int(header_idx) + 1, data_lines=np.flatnonzero(is_data) + 1,
-        line_starts=starts, line_stops=stops, field_counts=field_counts,
+        line_starts=starts, line_stops=stops,
     )
 
 
-def _first_header(buf, starts, stops, is_comment, blankish) -> int:
-    csum = np.concatenate(([0], np.cumsum(~blankish, dtype=np.int64)))
-    candidates = np.flatnonzero(((csum[stops] - csum[starts]) > 0) & ~is_comment)
-    if len(candidates) == 0:
-        raise FileUnusable("no header line (only blank or comment lines)")
-    return int(candidates[0])
+def _has_content(buf, starts, stops, candidates, delimiter: str, n_fields: int) -> np.ndarray:
+    """False for lines holding only blanks and delimiters (checked on short lines only)."""
+    out = np.ones(len(starts), bool)
+    lengths = stops - starts
+    short = np.flatnonzero(candidates & (lengths <= 2 * n_fields + 4))
+    if len(short) == 0:
+        return out
+    lens = lengths[short]
+    offsets = np.concatenate(([0], np.cumsum(lens)[:-1]))
+    pos = np.repeat(starts[short] - offsets, lens) + np.arange(lens.sum())
+    blank = np.frombuffer(f" \t\n{delimiter}".encode(), np.uint8)
+    content = ~np.isin(buf[pos], blank)
+    out[short] = np.add.reduceat(content, offsets) > 0
+    return out
+
+
+def _first_header(data: bytes, starts, stops, is_comment) -> int:
+    for i in np.flatnonzero(~is_comment):
+        if data[starts[i]:stops[i]].strip():
+            return int(i)
+    raise FileUnusable("no header line (only blank or comment lines)")
 
 
 def _sniff_delimiter(header: str) -> str:
@@ -149,49 +168,80 @@ def _metadata(data: bytes, starts, stops, comment_idx) -> dict[str, str]:
     """``# key: value`` lines (keys lower-cased); the first occurrence of a key wins."""
     out: dict[str, str] = {}
     for i in comment_idx[:200]:  # metadata sits in a file's head; bound the scan
-        m = _META_RE.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\r\n"))
+        m = _META_RE.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\n"))
         if m:
             out.setdefault(m.group(1).strip().lower(), m.group(2))
     return out
 
 
+class _BadStructure(Exception):
+    """Some line has the wrong number of fields (pyarrow's fast path cannot say which)."""
+
+
 def parse_rows(log: LogText, numeric: list[int], text: list[int]) -> ParsedRows:
     """Parse the wanted columns; numeric ones as float64 where every cell allows it.
 
-    Numeric columns that hold a non-number anywhere come back as strings (the
-    caller converts them cell by cell and rejects the rows that fail), so one
-    bad cell costs one row, not the file.
+    Fast path: one multi-threaded pyarrow read. Only when a line has the wrong
+    number of fields are lines counted (numpy over delimiters, or pyarrow's
+    row handler single-threaded when quotes make counting unsafe) and the bad
+    ones rejected. Numeric columns that hold a non-number anywhere come back as
+    strings (the caller converts them cell by cell and rejects the rows that
+    fail), so one bad cell costs one row, not the file.
     """
-    n_fields = len(log.header)
     lines = log.data_lines
-    rejects: list[tuple[int, str]] = []
-    if log.field_counts is not None:
-        ok = log.field_counts == n_fields
-        for line, count in zip(lines[~ok], log.field_counts[~ok]):
-            rejects.append((int(line), f"{count} fields, the header has {n_fields}"))
-        lines = lines[ok]
-    body = _select_lines(log, lines)
     wanted = sorted(set(numeric) | set(text))
     if len(lines) == 0 or not wanted:
-        return ParsedRows({i: pa.array([], pa.string()) for i in wanted}, lines[:0], rejects)
-    decimal_points = ["."] if log.delimiter == "," else [".", ","]
-    for dp in decimal_points:
-        types = {f"c{i}": (pa.float64() if i in numeric else pa.string()) for i in wanted}
-        try:
-            table, skipped = _read(body, log, wanted, types, dp)
-            break
-        except pa.ArrowInvalid:
-            continue
-    else:
-        table, skipped = _read(body, log, wanted, {f"c{i}": pa.string() for i in wanted}, ".")
-    if skipped:
-        keep = np.ones(len(lines), bool)
-        for number, reason in skipped:
-            keep[number - 1] = False
-            rejects.append((int(lines[number - 1]), reason))
-        lines = lines[keep]
+        return ParsedRows({i: pa.array([], pa.string()) for i in wanted}, lines[:0], [])
+    rejects: list[tuple[int, str]] = []
+    try:
+        table = _typed(_select_lines(log, lines), log, wanted, numeric, None)
+    except _BadStructure:
+        table, lines, rejects = _with_bad_lines(log, lines, wanted, numeric)
+    if table.num_rows != len(lines):
+        raise FileUnusable(f"line accounting failed ({table.num_rows} rows parsed from {len(lines)} lines)")
     columns = {i: table.column(f"c{i}").combine_chunks() for i in wanted}
     return ParsedRows(columns, lines, rejects)
+
+
+def _with_bad_lines(log: LogText, lines: np.ndarray, wanted: list[int], numeric: list[int]):
+    """Reject lines with the wrong number of fields, parse the rest."""
+    rejects: list[tuple[int, str]] = []
+    try:
+        if not log.quoted:
+            counts = log.field_counts(lines)
+            ok = counts == len(log.header)
+            rejects = [(int(line), f"{count} fields, the header has {len(log.header)}")
+                       for line, count in zip(lines[~ok], counts[~ok])]
+            lines = lines[ok]
+            table = _typed(_select_lines(log, lines), log, wanted, numeric, None)
+        else:
+            skipped: list[tuple[int, str]] = []
+            table = _typed(_select_lines(log, lines), log, wanted, numeric, skipped)
+            keep = np.ones(len(lines), bool)
+            for number, reason in skipped:
+                keep[number - 1] = False
+                rejects.append((int(lines[number - 1]), reason))
+            lines = lines[keep]
+    except _BadStructure:
+        raise FileUnusable("rows cannot be split into fields (unbalanced quotes?)") from None
+    return table, lines, rejects
+
+
+def _typed(body: bytes, log: LogText, wanted: list[int], numeric: list[int], skipped: list | None) -> pa.Table:
+    """Read with numeric columns as float64 (decimal point, then comma), else all as strings."""
+    if not body:
+        return pa.table({f"c{i}": pa.array([], pa.string()) for i in wanted})
+    attempts = [(".", True)] if log.delimiter == "," else [(".", True), (",", True)]
+    for dp, typed in attempts + [(".", False)]:
+        types = {f"c{i}": (pa.float64() if typed and i in numeric else pa.string()) for i in wanted}
+        if skipped is not None:
+            skipped.clear()
+        try:
+            return _read(body, log, wanted, types, dp, skipped)
+        except pa.ArrowInvalid as exc:
+            if "CSV parse error" in str(exc):
+                raise _BadStructure() from None
+    raise AssertionError("a read with all columns as strings cannot fail to convert")
 
 
 def _select_lines(log: LogText, lines: np.ndarray) -> bytes:
@@ -204,31 +254,26 @@ def _select_lines(log: LogText, lines: np.ndarray) -> bytes:
     keep = np.zeros(len(log.line_starts), bool)
     keep[idx] = True
     byte_keep = np.repeat(keep, log.line_stops - log.line_starts)
-    body = np.frombuffer(log.data, np.uint8)[byte_keep].tobytes()
-    return body
+    return np.frombuffer(log.data, np.uint8)[byte_keep].tobytes()
 
 
-def _read(body: bytes, log: LogText, wanted: list[int], types: dict, decimal_point: str):
-    skipped: list[tuple[int, str]] = []
-    n_fields = len(log.header)
-
+def _read(body: bytes, log: LogText, wanted: list[int], types: dict, decimal_point: str, skipped: list | None):
     def on_invalid(row) -> str:
         skipped.append((row.number, f"{row.actual_columns} fields, the header has {row.expected_columns}"))
         return "skip"
 
-    quoted = log.field_counts is None
     if not body.endswith(b"\n"):
         body += b"\n"
-    table = pacsv.read_csv(
+    return pacsv.read_csv(
         io.BytesIO(body),
-        read_options=pacsv.ReadOptions(column_names=[f"c{i}" for i in range(n_fields)], use_threads=not quoted,
-                                       block_size=1 << 24),
-        parse_options=pacsv.ParseOptions(delimiter=log.delimiter, invalid_row_handler=on_invalid if quoted else None),
+        read_options=pacsv.ReadOptions(column_names=[f"c{i}" for i in range(len(log.header))],
+                                       use_threads=skipped is None, block_size=1 << 24),
+        parse_options=pacsv.ParseOptions(delimiter=log.delimiter,
+                                         invalid_row_handler=on_invalid if skipped is not None else None),
         convert_options=pacsv.ConvertOptions(include_columns=[f"c{i}" for i in wanted], column_types=types,
                                              null_values=NULL_TOKENS, strings_can_be_null=True,
                                              quoted_strings_can_be_null=True, decimal_point=decimal_point),
     )
-    return table, skipped
 
 
 def to_float(col: pa.Array, decimal_comma: bool) -> tuple[np.ndarray, np.ndarray]:

@@ -67,8 +67,10 @@ def parse_time(col: pa.Array, unit: str | None, fmt: str, timezone: str | None,
     else:
         raise FileUnusable(f"time column unit {unit!r} is not s or ms")
     finite = seconds[np.isfinite(seconds)]
-    if len(finite) == 0:
-        raise FileUnusable("the time column holds no readable time")
+    if len(finite) == 0:  # nothing to tell the time base by: every row is rejected on its own
+        unreadable = ~missing
+        return TimeResult(np.zeros(len(col), np.int64), np.ones(len(col), bool),
+                          {"is missing": missing, "is neither an ISO 8601 time nor a number": unreadable}, "none")
     epoch = fmt in ("epoch_s", "epoch_ms") or (fmt == "auto" and np.median(finite) > EPOCH_S_MIN)
     if epoch:
         offset_us, basis = 0, "epoch"
@@ -91,7 +93,8 @@ def _mostly_iso(text: pa.Array) -> bool:
         return False
     sample = valid.slice(0, 1000)
     iso = pc.sum(pc.match_substring_regex(sample, r"^\s*\d{4}-\d{2}-\d{2}[T ]")).as_py() or 0
-    return iso * 2 > len(sample)
+    number = pc.sum(pc.match_substring_regex(sample, r"^\s*[+-]?(\d+[.,]?\d*|[.,]\d+)([eE][+-]?\d+)?\s*$")).as_py() or 0
+    return iso > 0 and iso >= number
 
 
 def _iso(text: pa.Array, missing: np.ndarray, timezone: str | None) -> TimeResult:
