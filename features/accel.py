@@ -56,10 +56,15 @@ def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> 
             row.set(name, np.nanmedian(trip.signals[signal][windows.standstill]) / G0_MPS2)
 
 
+def calibrated_or_raw(trip: TripArrays, ref: WheelReference) -> np.ndarray:
+    """Wheel speeds divided by their relative radius where calibrated (a spare wheel's speed is
+    ~3 % low, and so would be its acceleration), else as logged."""
+    return ref.calibrated_wheels if np.isfinite(ref.radius_offset).all() else trip.wheels
+
+
 def wheel_acceleration_reference(trip: TripArrays, ref: WheelReference) -> np.ndarray:
     """dv/dt of the median of the four (calibrated where possible) wheel speeds, Savitzky–Golay, m/s²."""
-    wheels = ref.calibrated_wheels if np.isfinite(ref.radius_offset).all() else trip.wheels
-    return smooth_derivative(median_of_four(wheels), trip)
+    return smooth_derivative(median_of_four(calibrated_or_raw(trip, ref)), trip)
 
 
 def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Windows, ref: WheelReference) -> None:
@@ -87,11 +92,11 @@ def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Wind
     row.set(name, float(np.sum(residual[usable] * weight) / weight.sum()) / G0_MPS2)
 
 
-def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
+def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, ref: WheelReference) -> None:
     """wheel_accel_disagree_<pos>_g = σ_pos / g0: the pos wheel's own false acceleration, in g.
 
-    Five estimates of the body's longitudinal acceleration: each wheel's
-    Savitzky–Golay derivative and the accelerometer, each high-passed (minus
+    Five estimates of the body's longitudinal acceleration: each
+    (radius-calibrated) wheel's Savitzky–Golay derivative and the accelerometer, each high-passed (minus
     a 5 s moving mean, which removes grade and offset). The variance of every
     wheel–accelerometer and wheel–wheel difference is σ_i² + σ_j²; solving
     the ten pairs (three-cornered hat, Gray & Allan 1974) gives each wheel its
@@ -113,7 +118,8 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows) ->
         x = np.where(usable, x, np.nan)
         return x - moving_mean(x, width)
 
-    sources = [highpassed(smooth_derivative(trip.wheels[i], trip)) for i in range(4)]
+    wheels = calibrated_or_raw(trip, ref)
+    sources = [highpassed(smooth_derivative(wheels[i], trip)) for i in range(4)]
     sources.append(highpassed(trip.signals["accel_long"]))
     pair_var = {(i, j): float(np.nanvar(sources[i] - sources[j]))
                 for i in range(5) for j in range(i + 1, 5)}
@@ -133,7 +139,7 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     lateral accelerometer vs wheel speeds.
     """
     name = "lat_residual_g"
-    reason = "signal_missing" if not trip.has("accel_lat") else wheel_yaw_reason(trip, spec, ref)
+    reason = wheel_yaw_reason(trip, spec, ref, "accel_lat")
     if reason:
         row.nan(name, reason)
         return

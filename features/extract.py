@@ -84,7 +84,7 @@ def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, obj
     accel_rest_features(row, trip, windows)
     accel_long_residual_feature(row, trip, windows, ref)
     lat_residual_feature(row, trip, vehicle, windows, ref)
-    wheel_accel_features(row, trip, windows)
+    wheel_accel_features(row, trip, windows, ref)
 
     out = row.as_dict()
     out.update(_quality(trip, windows, distance_km))

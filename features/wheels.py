@@ -20,6 +20,7 @@ from features.signals import (
     TripArrays,
     count_events,
     median_of_four,
+    median_of_three,
     moving_mean,
     robust_spread,
     seconds,
@@ -67,6 +68,7 @@ class WheelReference:
     yaw_rate: np.ndarray  #: (v_rr − v_rl)/track_rear from calibrated wheels, rad/s
     calibrated_wheels: np.ndarray  #: (4, n) wheel speeds divided by their relative radius
     axles_agree: np.ndarray  #: front- and rear-axle yaw agree (one wheel's glitch breaks it)
+    consensus_yaw_rate: np.ndarray  #: 1 s median of yaw sensor, rear axle, front axle, rad/s
     reason: str | None  #: why there is no calibration
 
 
@@ -117,20 +119,25 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
     nan = np.full(trip.n, np.nan)
     if seconds(windows.cruise, trip) < CALIBRATION_MIN_S:
         reason = windows.straight_reason or "no_straight_cruise"
-        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), reason)
+        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, reason)
     offset = distance_ratios(trip.wheels[:, windows.cruise]) - 1.0
     calibrated = trip.wheels / (1.0 + offset)[:, None]
     rl, rr = calibrated[2], calibrated[3]
     reason = spec.missing("track_rear_m", "track_front_m")
     if reason:
-        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), reason)
+        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, reason)
     width = window_samples(AXLE_SMOOTH_S, trip.rate_hz)
     rear = moving_mean(rear_axle_yaw_rate(rl, rr, spec.track_rear_m), width)
     front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
     with np.errstate(invalid="ignore"):
         agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
+    if trip.has("yaw_rate"):
+        sensor = moving_mean(trip.signals["yaw_rate"], width)
+        consensus = np.where(np.isfinite(sensor), median_of_three(sensor, rear, front), 0.5 * (rear + front))
+    else:
+        consensus = 0.5 * (rear + front)
     return WheelReference(offset, 0.5 * (rl + rr), rear_axle_yaw_rate(rl, rr, spec.track_rear_m),
-                          calibrated, agree, None)
+                          calibrated, agree, consensus, None)
 
 
 def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
@@ -138,8 +145,10 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     """wheel_ratio_<pos>_pct = 100 · (Σ u_pos / Σ mean(u) − 1), u_pos = v_pos / f_pos, in %.
 
     f_pos is the kinematic wheel-path factor of the turn (CHECKS.md wheel paths,
-    features.kinematics.wheel_path_factors) at curvature k = r/v from the
-    *calibrated* rear axle, so turns up to 2 m/s² lateral count as well as
+    features.kinematics.wheel_path_factors) at curvature k = r/v, r the 1 s
+    median of three yaw estimates (yaw sensor, calibrated rear axle,
+    calibrated front axle: a 2-of-3 vote, so one faulty source cannot bend it)
+    and v the median wheel speed; turns up to 2 m/s² lateral count as well as
     straight road. On straight road f = 1 and this is DESIGN.md's v_pos/mean(v)
     − 1, taken as a distance ratio (see distance_ratios for why not the
     median). Without the geometry it falls back to straight cruise.
@@ -150,10 +159,10 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
         row.nan_all(names, ref.reason)
         return
     if spec.missing("track_front_m", "track_rear_m", "wheelbase_m") is None:
-        # the turn is judged on 1 s means so that one wheel's fast noise neither
-        # enters the correction nor picks the samples
-        width = window_samples(AXLE_SMOOTH_S, trip.rate_hz)
-        yaw, speed = moving_mean(ref.yaw_rate, width), moving_mean(ref.speed, width)
+        # the turn comes from the 2-of-3 consensus (yaw sensor, rear axle, front
+        # axle), so neither one wheel's noise nor a yaw-sensor fault enters the
+        # correction or picks the samples
+        yaw, speed = ref.consensus_yaw_rate, windows.speed
         with np.errstate(invalid="ignore", divide="ignore"):
             curvature = yaw / speed
             usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & rolling_everywhere(trip)

@@ -23,7 +23,7 @@ YAW_FIT_MIN_S = 30.0
 #: Linear range of the tyres; beyond it the wheel and model references bend.
 YAW_FIT_MAX_LAT_MPS2 = 4.0
 #: Turning (|r| ≥ 3 deg/s) needed before a gain means anything.
-YAW_GAIN_MIN_TURN_S = 20.0
+YAW_GAIN_MIN_TURN_S = 40.0
 #: One speed step across the rear track, as yaw: above this the wheel yaw is quantisation.
 WHEEL_YAW_MAX_STEP_RADPS = 2.0 * DEG_RAD
 STEER_CENTER_MIN_S = 10.0
@@ -49,8 +49,10 @@ def yaw_rest_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> Non
         row.set("yaw_rest_dps", _to_deg(np.nanmedian(trip.signals["yaw_rate"][windows.standstill])))
 
 
-def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference) -> str | None:
-    """Why the calibrated rear-axle yaw cannot serve as a reference, or None."""
+def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference, signal: str) -> str | None:
+    """Why ``signal`` cannot be compared with the calibrated rear-axle yaw, or None."""
+    if not trip.has(signal):
+        return "signal_missing"
     if ref.reason:
         return ref.reason
     steps = [trip.resolution.get(f"wheel_speed_{p}", np.nan) for p in ("rl", "rr")]
@@ -70,11 +72,11 @@ def yaw_regression_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec
     least squares would shrink the gain by the wheel noise) with the noise
     ratio from each signal's successive differences. Calm driving only (no
     brake, |dv/dt| < 0.5 m/s², v ≥ 5 m/s, lateral < 4 m/s²) where front- and
-    rear-axle yaw agree. The gain needs 20 s of turning above 3 deg/s; with
+    rear-axle yaw agree. The gain needs 40 s of turning above 3 deg/s; with
     too little turning only the offset is given (median of yaw − r_wheels).
     """
     names = ("yaw_offset_dps", "yaw_gain")
-    reason = "signal_missing" if not trip.has("yaw_rate") else wheel_yaw_reason(trip, spec, ref)
+    reason = wheel_yaw_reason(trip, spec, ref, "yaw_rate")
     if reason:
         row.nan_all(names, reason)
         return
