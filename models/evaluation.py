@@ -116,7 +116,8 @@ def _tracktrue_result(fleet: ScoredFleet) -> MethodResult:
     veh = pd.DataFrame({"vehicle_id": st["vehicle_id"], "order": st["rank"],
                         "flagged": st["status"].eq("inspect").to_numpy(), "component": st["suspected_component"]})
     per = fleet.drift.attrs["per_trip"]
-    return MethodResult(veh, per[["vehicle_id", "start_time", "alert"]])
+    # what sends a vehicle to the workshop: sensor alerts (tyre-only drift is a "watch")
+    return MethodResult(veh, per[["vehicle_id", "start_time", "sensor_alert"]].rename(columns={"sensor_alert": "alert"}))
 
 
 def _rolling_alert(trips: pd.DataFrame, hit: np.ndarray) -> pd.Series:

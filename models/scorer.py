@@ -40,6 +40,7 @@ from models.attribution import choose_component, suggestion_for
 from models.drift import required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
+from models.service import FAMILIES, epoch_keys, service_table, statistic_family
 from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
 from tracktrue.schema import STATUSES
 
@@ -78,6 +79,7 @@ class FleetScorer:
         signal_z: float = 4.0,
         attribution_z: float = 4.0,
         watch_evidence_z: float = 6.0,
+        inspect_evidence_z: float = 8.0,
         normalise_features: bool = True,
     ):
         self.min_peer_vehicles = min_peer_vehicles
@@ -105,6 +107,7 @@ class FleetScorer:
         self.signal_z = signal_z
         self.attribution_z = attribution_z
         self.watch_evidence_z = watch_evidence_z
+        self.inspect_evidence_z = inspect_evidence_z
         self.normalise_features = normalise_features
 
     # ------------------------------------------------------------------ fit
@@ -129,15 +132,14 @@ class FleetScorer:
                                        max_samples=self.max_samples, max_trips_per_vehicle=self.max_trips_per_vehicle,
                                        value_clip=self.forest_clip, random_state=self.random_state)
         self.forest_.fit(design, recent["vehicle_id"], recent["start_time"], neutral_zero=self.normalise_features)
-        self.service_events_ = _service_table(service_events)
+        self.service_events_ = service_table(service_events)
         # drift calibration: statistics, baselines, pooled within-vehicle spread, threshold
         stats = self._drift_statistics(df)
         self.statistics_ = [c for c in stats.columns if stats[c].notna().any()]
-        base = self._baselines(df, stats)
-        spread = stats[self.statistics_].sub(base[self.statistics_]).abs()
+        base, in_base, _ = self._baselines(df, stats)
         # deviations of trips *outside* the baseline they are compared with (inside it,
         # a trip pulls its own baseline towards itself and the spread comes out too small)
-        spread.loc[base["in_baseline"].to_numpy(), :] = np.nan
+        spread = stats[self.statistics_].sub(base).abs().mask(in_base)
         per_vehicle = spread.groupby([df["peer_group"].to_numpy(), df["vehicle_id"].to_numpy()]).median() * MAD_TO_SIGMA
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -205,17 +207,11 @@ class FleetScorer:
         return self._key_means(normalise(df, self.peer_stats_, self.features_, leave_one_out=False),
                                clip=self.drift_clip)
 
-    def _epochs(self, df: pd.DataFrame) -> np.ndarray:
-        """Number of service events before each trip: a repair starts a new baseline."""
-        ev = self.service_events_
-        if ev.empty:
-            return np.zeros(len(df), dtype=int)
-        merged = df[["vehicle_id", "start_time"]].reset_index().merge(ev, on="vehicle_id", how="left")
-        merged["before"] = merged["event_time"].notna() & (merged["event_time"] <= merged["start_time"])
-        return merged.groupby("index")["before"].sum().reindex(df.index, fill_value=0).to_numpy()
-
-    def _baselines(self, df: pd.DataFrame, stats: pd.DataFrame) -> pd.DataFrame:
+    def _baselines(self, df: pd.DataFrame, stats: pd.DataFrame):
         """Each trip's own-vehicle baseline per statistic: a lagged expanding median.
+
+        Returns (baseline values, in-baseline mask, epoch key per family);
+        df must be sorted by vehicle and time (series are contiguous rows).
 
         Trip t of a (vehicle, epoch) series is compared with the median of its
         trips [0, max(baseline_trips, t − baseline_lag_trips)): at first the
@@ -225,19 +221,25 @@ class FleetScorer:
         CUSUM turns into false alarms; the growing history shrinks it.
         Undefined (NaN) until ``min_baseline_trips`` values exist.
         """
-        key = pd.Series(list(zip(df["vehicle_id"], self._epochs(df))), index=df.index).astype(str)
-        codes = pd.factorize(key)[0]
-        order = df.groupby(codes).cumcount().to_numpy()
-        x = stats[self.statistics_]
-        expanding = x.groupby(codes).expanding(min_periods=self.min_baseline_trips).median()
-        expanding = expanding.reset_index(level=0, drop=True).reindex(df.index)
-        upto = np.maximum(self.baseline_trips, order - self.baseline_lag_trips)  # exclusive end
-        size = pd.Series(order).groupby(codes).transform("size").to_numpy()
-        row = np.arange(len(df)) - order + np.minimum(upto, size) - 1  # series are contiguous rows
-        base = pd.DataFrame(expanding.to_numpy()[row], columns=self.statistics_, index=df.index)
-        base["in_baseline"] = order < self.baseline_trips
-        base["epoch_key"] = key.to_numpy()
-        return base
+        base = pd.DataFrame(index=df.index, columns=self.statistics_, dtype=float)
+        in_base = pd.DataFrame(False, index=df.index, columns=self.statistics_)
+        keys = {}
+        for family in FAMILIES:
+            cols = [c for c in self.statistics_ if statistic_family(c) == family]
+            key = epoch_keys(df, self.service_events_, family)
+            keys[family] = key
+            if not cols:
+                continue
+            codes = pd.factorize(key)[0]
+            order = pd.Series(codes).groupby(codes).cumcount().to_numpy()
+            expanding = stats[cols].reset_index(drop=True).groupby(codes).expanding(
+                min_periods=self.min_baseline_trips).median().reset_index(level=0, drop=True).sort_index()
+            upto = np.maximum(self.baseline_trips, order - self.baseline_lag_trips)  # exclusive end
+            size = pd.Series(order).groupby(codes).transform("size").to_numpy()
+            row = np.arange(len(df)) - order + np.minimum(upto, size) - 1  # series are contiguous rows
+            base[cols] = expanding.to_numpy()[row]
+            in_base[cols] = np.repeat((order < self.baseline_trips)[:, None], len(cols), axis=1)
+        return base, in_base, keys
 
     # ------------------------------------------------------------ scoring
     def score_trips(self, trip_features: pd.DataFrame) -> pd.DataFrame:
@@ -262,25 +264,36 @@ class FleetScorer:
         df = trip_scores[["trip_id", "vehicle_id", "start_time", "peer_group", "score"]].copy()
         feats = trip_features.set_index("trip_id").loc[df["trip_id"], self.features_].reset_index(drop=True)
         stats = self._drift_statistics(pd.concat([df, feats], axis=1))[self.statistics_]
-        base = self._baselines(df, stats)
+        base, in_base, keys = self._baselines(df, stats)
         groups = trip_scores["peer_group"].to_numpy()
         sigma = self.within_sigma_.reindex(groups)[self.statistics_].fillna(self.fleet_within_sigma_)
-        u = ((stats - base[self.statistics_]) / sigma.to_numpy()).clip(-self.drift_clip, self.drift_clip)
-        u.loc[base["in_baseline"].to_numpy(), :] = np.nan  # the baseline trips are the reference, not evidence
-        hi, lo = _cusum_by_group(u, base["epoch_key"].to_numpy(), self.cusum_k)
+        u = ((stats - base) / sigma.to_numpy()).clip(-self.drift_clip, self.drift_clip)
+        u = u.mask(in_base)  # the baseline trips are the reference, not evidence
+        hi = np.zeros(u.shape)
+        lo = np.zeros(u.shape)
+        for family in FAMILIES:
+            idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
+            if idx:
+                hi[:, idx], lo[:, idx] = _cusum_by_group(u.iloc[:, idx], keys[family], self.cusum_k)
         alarm = np.maximum(hi, lo) > self.cusum_h_
-        rolling = (df.groupby(base["epoch_key"].to_numpy())["score"]
+        vehicle_key = keys["sensor"]
+        rolling = (df.groupby(vehicle_key)["score"]
                    .transform(lambda s: s.rolling(self.vehicle_trips, min_periods=self.min_trips).median()))
         score_alert = ((rolling - self.score_center_) / self.score_scale_ >= self.inspect_score_z).to_numpy()
+        strength = np.maximum(hi, lo) / self.cusum_h_
+        kinds = np.array([_alarm_kind(c) for c in self.statistics_])
+        ratio_strength = strength[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(df))
+        sensor_alarm = (alarm[:, kinds == "sensor"].any(axis=1)
+                        | (alarm[:, kinds == "vs_wheels"].any(axis=1) & (ratio_strength < 0.5)))
+        peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
         wide["drift_alarm"] = alarm.any(axis=1)
+        wide["peer_alarm"] = peer_any
         wide["score_alert"] = score_alert
-        raw_alert = pd.Series((wide["drift_alarm"] | wide["score_alert"]).to_numpy(dtype=float))
         # hold an alert for alert_hold_trips trips: a CUSUM hovering at h is one episode, not many
-        held = raw_alert.groupby(base["epoch_key"].to_numpy()).transform(
-            lambda s: s.rolling(self.alert_hold_trips, min_periods=1).max())
-        wide["alert"] = held.to_numpy() > 0
-        wide["epoch_key"] = base["epoch_key"].to_numpy()
+        wide["alert"] = self._held(wide["drift_alarm"] | peer_any | score_alert, vehicle_key)
+        wide["sensor_alert"] = self._held(sensor_alarm | peer_sensor | score_alert, vehicle_key)
+        wide["epoch_key"] = vehicle_key
         for j, s in enumerate(self.statistics_):
             wide[f"strength__{s}"] = np.maximum(hi[:, j], lo[:, j]) / self.cusum_h_
         long = pd.DataFrame({
@@ -298,11 +311,37 @@ class FleetScorer:
         long.attrs["per_trip"] = wide
         return long
 
+    def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Fleet-relative alarms: the rolling median (last ``vehicle_trips`` trips) of an
+        evidence key's leave-one-out z beyond ``inspect_evidence_z`` peer spreads.
+
+        This catches a fault already present when the vehicle's own baseline was
+        taken (drift sees only change). Wheel-signal keys count upwards only; a
+        ratio key alone is a tyre (``any`` but not ``sensor``); a versus-wheels key
+        is a sensor alarm only while no wheel ratio is abnormal.
+        """
+        z = trip_scores[[f"z_{f}" for f in self.features_]].set_axis(self.features_, axis=1)
+        keys = self._key_means(z, clip=self.forest_clip)
+        roll = keys.groupby(key).transform(lambda c: c.rolling(self.vehicle_trips, min_periods=self.min_trips).median())
+        strength = pd.DataFrame({c: roll[c].clip(lower=0) if c.startswith("wheel_signal_") else roll[c].abs()
+                                 for c in roll.columns}).fillna(0.0)
+        kinds = np.array([_alarm_kind(c) for c in strength.columns])
+        beyond = strength.to_numpy() >= self.inspect_evidence_z
+        ratio = strength.to_numpy()[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(z))
+        sensor = beyond[:, kinds == "sensor"].any(axis=1) | (beyond[:, kinds == "vs_wheels"].any(axis=1)
+                                                              & (ratio < self.attribution_z))
+        return beyond.any(axis=1), sensor
+
+    def _held(self, alarm, key) -> np.ndarray:
+        s = pd.Series(np.asarray(alarm, dtype=float))
+        held = s.groupby(np.asarray(key)).transform(lambda x: x.rolling(self.alert_hold_trips, min_periods=1).max())
+        return held.to_numpy() > 0
+
     def rank(self, trip_scores: pd.DataFrame, drift_long: pd.DataFrame, lamps: pd.DataFrame,
              vehicles: pd.DataFrame | None = None, as_of=None) -> pd.DataFrame:
         """VEHICLE_STATUS_COLUMNS (plus helper columns), ordered by status then score."""
         per_trip = drift_long.attrs["per_trip"]
-        ts = trip_scores.merge(per_trip[["trip_id", "alert", "epoch_key"]], on="trip_id", how="left")
+        ts = trip_scores.merge(per_trip[["trip_id", "alert", "sensor_alert", "epoch_key"]], on="trip_id", how="left")
         ts = ts.sort_values(["vehicle_id", "start_time"])
         current = ts.groupby("vehicle_id")["epoch_key"].transform("last")
         cur = ts[ts["epoch_key"] == current]
@@ -314,7 +353,7 @@ class FleetScorer:
         vscore = recent.groupby("vehicle_id")["score"].median()
         n_recent = recent.groupby("vehicle_id").size()
         last = cur.groupby("vehicle_id").tail(1).set_index("vehicle_id")
-        since = _run_start(cur)
+        since_any, since_sensor = _run_start(cur, "alert"), _run_start(cur, "sensor_alert")
         lamp_last = lamps.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
         strength = per_trip.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
         rows = []
@@ -322,6 +361,7 @@ class FleetScorer:
             ev = self._evidence(zmed.loc[vid])
             component, key = choose_component(ev, self.signal_z, self.attribution_z)
             alert = bool(last.at[vid, "alert"])
+            sensor_alert = bool(last.at[vid, "sensor_alert"])
             if alert and component == "none":
                 drift_ev = {s: strength.at[vid, f"strength__{s}"] * self.attribution_z for s in self.statistics_}
                 component, key = choose_component(drift_ev, self.signal_z, self.attribution_z)
@@ -332,13 +372,13 @@ class FleetScorer:
                 status = "lamp_lit"
             elif n_recent[vid] < self.min_trips:
                 status = "insufficient_data"
-            elif alert and component.startswith(SENSOR_COMPONENTS_PREFIX):
+            elif sensor_alert and component.startswith(SENSOR_COMPONENTS_PREFIX):
                 status = "inspect"
             elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
                 status = "watch"
             else:
                 status, component, key = "ok", "none", None
-            flagged = since.get(vid) if alert else None
+            flagged = (since_sensor.get(vid) if status == "inspect" else since_any.get(vid)) if alert else None
             rows.append({
                 "vehicle_id": vid,
                 "platform": last.at[vid, "platform"],
@@ -354,6 +394,7 @@ class FleetScorer:
                 "lamp_on": lamp_on,
                 "n_trips": int(n_recent[vid]),
                 "alert": alert,
+                "sensor_alert": sensor_alert,
             })
         out = pd.DataFrame(rows)
         if vehicles is not None and not vehicles.empty:
@@ -426,12 +467,11 @@ def _unit(unit: str) -> str:
     return "" if not unit else (" %" if unit == "%" else f" {unit}")
 
 
-def _service_table(events: pd.DataFrame | None) -> pd.DataFrame:
-    if events is None or len(events) == 0:
-        return pd.DataFrame({"vehicle_id": pd.Series(dtype=object), "event_time": pd.Series(dtype="datetime64[ns, UTC]")})
-    col = "event_time" if "event_time" in events.columns else "date"
-    return pd.DataFrame({"vehicle_id": events["vehicle_id"].astype(str).to_numpy(),
-                         "event_time": pd.to_datetime(events[col], utc=True).to_numpy()})
+def _alarm_kind(statistic: str) -> str:
+    """``ratio`` (a tyre as likely as a sensor), ``vs_wheels`` (a tyre moves it too), else ``sensor``."""
+    if statistic.startswith("wheel_ratio_"):
+        return "ratio"
+    return "vs_wheels" if "_vs_wheels" in statistic else "sensor"
 
 
 def _cusum_by_group(u: pd.DataFrame, keys: np.ndarray, k: float) -> tuple[np.ndarray, np.ndarray]:
@@ -445,11 +485,11 @@ def _cusum_by_group(u: pd.DataFrame, keys: np.ndarray, k: float) -> tuple[np.nda
     return hi[codes, :, pos], lo[codes, :, pos]
 
 
-def _run_start(ts: pd.DataFrame) -> dict:
+def _run_start(ts: pd.DataFrame, column: str) -> dict:
     """Date of the first trip of each vehicle's current run of alerting trips."""
     out = {}
     for vid, g in ts.groupby("vehicle_id", sort=False):
-        a = g["alert"].fillna(False).to_numpy(dtype=bool)
+        a = g[column].fillna(False).to_numpy(dtype=bool)
         if not a[-1]:
             continue
         breaks = np.flatnonzero(~a)

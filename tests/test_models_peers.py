@@ -1,0 +1,72 @@
+"""Peer-group normalisation: like with like, leave-one-out, rate classes, floors, fallback."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from models.peers import MAD_TO_SIGMA, assign_peer_groups, normalise, peer_statistics, rate_class
+
+
+def _fleet(values: dict[str, list[float]], platform: str = "van", rate_hz: float = 10.0) -> pd.DataFrame:
+    rows = [{"vehicle_id": v, "platform": platform, "sample_rate_hz": rate_hz, "x": x,
+             "start_time": pd.Timestamp("2026-03-02", tz="UTC") + pd.Timedelta(hours=i)}
+            for v, xs in values.items() for i, x in enumerate(xs)]
+    return pd.DataFrame(rows)
+
+
+def test_mad_scale_factor_makes_mad_a_sigma_estimate():
+    # 1.4826 ≈ 1/Φ⁻¹(0.75) (scipy as the reference implementation)
+    from scipy.stats import norm
+
+    assert abs(MAD_TO_SIGMA - 1.0 / norm.ppf(0.75)) < 1e-4
+
+
+def test_small_platform_median_does_not_absorb_its_faulty_member():
+    rng = np.random.default_rng(0)
+    vals = {f"V{i}": list(rng.normal(0.0, 0.1, 20)) for i in range(4)}
+    vals["BAD"] = list(rng.normal(1.0, 0.1, 20))
+    df = _fleet(vals)
+    df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, min_peer_vehicles=3)
+    stats = peer_statistics(df, ["x"], rel_floor=0.0, min_ref_trips=5)
+    z = normalise(df, stats, ["x"])["x"]
+    bad = z[df["vehicle_id"] == "BAD"].median()
+    assert bad > 8  # against the four healthy peers only
+    healthy = z[df["vehicle_id"] != "BAD"].abs().median()
+    assert healthy < 1.5
+
+
+def test_loggers_of_different_rates_are_never_peers():
+    df = pd.concat([_fleet({f"A{i}": [0.1] * 3 for i in range(5)}, rate_hz=1.0),
+                    _fleet({f"B{i}": [0.1] * 3 for i in range(5)}, rate_hz=50.0)])
+    groups = assign_peer_groups(df, min_peer_vehicles=5)["peer_group"]
+    assert groups[df["vehicle_id"].str.startswith("A").to_numpy()].nunique() == 1
+    assert set(groups[df["vehicle_id"].str.startswith("A").to_numpy()]).isdisjoint(
+        groups[df["vehicle_id"].str.startswith("B").to_numpy()])
+    assert list(rate_class(pd.Series([1.0, 10.0, 50.0, np.nan]))) == ["lt3hz", "3to20hz", "ge20hz", "unknown_rate"]
+
+
+def test_platform_with_too_few_vehicles_falls_back_to_fleet_and_is_marked():
+    df = pd.concat([_fleet({f"A{i}": [0.0] * 3 for i in range(6)}, platform="van"),
+                    _fleet({"T0": [0.0] * 3, "T1": [0.0] * 3}, platform="truck")])
+    g = assign_peer_groups(df, min_peer_vehicles=5)
+    trucks = df["platform"].eq("truck").to_numpy()
+    assert g.loc[trucks, "peer_fallback"].all() and not g.loc[~trucks, "peer_fallback"].any()
+    assert set(g.loc[trucks, "peer_group"]) == {"fleet/3to20hz"}
+
+
+def test_feature_without_healthy_spread_is_scaled_by_its_floor_not_by_zero():
+    vals = {f"V{i}": [0.0] * 10 for i in range(5)}
+    vals["V5"] = [0.0] * 9 + [5.0]
+    df = _fleet(vals).rename(columns={"x": "wheel_dropouts_fl"})
+    df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, 3)
+    stats = peer_statistics(df, ["wheel_dropouts_fl"], rel_floor=0.1, min_ref_trips=5)
+    z = normalise(df, stats, ["wheel_dropouts_fl"])["wheel_dropouts_fl"]
+    assert np.isfinite(z).all() and z.max() == 5.0  # floor 1 event per 100 km
+
+
+def test_missing_feature_stays_missing_after_normalisation():
+    df = _fleet({f"V{i}": [0.0, np.nan, 0.1, 0.2, -0.1, 0.05] for i in range(5)})
+    df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, 3)
+    z = normalise(df, peer_statistics(df, ["x"], 0.1, 5), ["x"])["x"]
+    assert z.isna().sum() == 5
