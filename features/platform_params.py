@@ -22,6 +22,8 @@ PARAMETERS: tuple[str, ...] = ("steering_ratio", "understeer_gradient_deg_per_g"
 PLATFORM_SPECS_COLUMNS: tuple[str, ...] = ("platform", "parameter", "value", "estimated", "n_trips")
 #: Turning seconds a vehicle needs before its pooled estimate counts.
 MIN_TURNING_S_PER_VEHICLE = 30.0
+#: 1 − (correlation of r and r·v²)² below this: the turns' speeds are too alike.
+MIN_RELATIVE_DETERMINANT = 0.01
 
 
 def registry_values(vehicles: pd.DataFrame) -> dict[tuple[str, str], float]:
@@ -57,8 +59,8 @@ def _solve(sums: pd.Series, wheelbase_m: float, known: dict[str, float]) -> dict
         b = a * k
     else:
         det = rr * rrv4 - rrv2 * rrv2
-        if not det > 0:
-            return {}
+        if not det > MIN_RELATIVE_DETERMINANT * rr * rrv4:
+            return {}  # turns at one speed only: n and K cannot be told apart
         a = (rvs * rrv4 - rrv2 * rv3s) / det
         b = (rr * rv3s - rrv2 * rvs) / det
     if not (a > 0 and math.isfinite(b)):

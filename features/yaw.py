@@ -53,6 +53,9 @@ def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference, s
     """Why ``signal`` cannot be compared with the calibrated rear-axle yaw, or None."""
     if not trip.has(signal):
         return "signal_missing"
+    missing = spec.missing("track_rear_m", "track_front_m")
+    if missing:
+        return missing
     if ref.reason:
         return ref.reason
     steps = [trip.resolution.get(f"wheel_speed_{p}", np.nan) for p in ("rl", "rr")]

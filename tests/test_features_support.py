@@ -23,11 +23,12 @@ SPEC = {
 }
 
 
-def profile(rate_hz=10.0, stop_s=20.0, cruise_s=120.0, turns=2, grade=0.0):
+def profile(rate_hz=10.0, stop_s=20.0, cruise_s=120.0, turns=2, grade=0.0, speed_scale=1.0):
     """Time, speed (m/s) and curvature (1/m) of a stop → drive → stop trip with ``turns`` left/right pairs."""
-    segments = [(stop_s, 0.0, 0.0), (10.0, 15.0, 0.0), (cruise_s, 15.0, 0.0)]
-    segments += [(25.0, 15.0, 1 / 100), (20.0, 15.0, 0.0), (25.0, 15.0, -1 / 100), (20.0, 15.0, 0.0)] * int(turns)
-    segments += [(10.0, 22.0, 0.0), (cruise_s / 2, 22.0, 0.0), (10.0, 0.0, 0.0), (stop_s, 0.0, 0.0)]
+    a, b = 15.0 * speed_scale, 22.0 * speed_scale
+    segments = [(stop_s, 0.0, 0.0), (10.0, a, 0.0), (cruise_s, a, 0.0)]
+    segments += [(25.0, a, 1 / 100), (20.0, a, 0.0), (25.0, a, -1 / 100), (20.0, a, 0.0)] * int(turns)
+    segments += [(10.0, b, 0.0), (cruise_s / 2, b, 0.0), (10.0, 0.0, 0.0), (stop_s, 0.0, 0.0)]
     t_knots = np.concatenate(([0.0], np.cumsum([s[0] for s in segments])))
     n = int(t_knots[-1] * rate_hz)
     t = np.arange(n) / rate_hz

@@ -1,0 +1,120 @@
+"""Qualifying windows, gating on rate and resolution, and NaN (never 0) with a countable reason."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from features.extract import FEATURE_COLUMNS, ROW_COLUMNS, extract_trip_features
+from features.row import parse_nan_reasons
+from test_features_support import SPEC, make_trip
+from tracktrue.schema import POSITIONS
+from tracktrue.units import KPH_MPS
+
+
+def reasons(row) -> dict[str, str]:
+    return parse_nan_reasons(row["nan_reasons"])
+
+
+def test_one_wheel_reading_zero_while_three_roll_is_a_dropout_on_that_wheel_not_a_standstill():
+    # Common practice (CHECKS.md, facts of the trade): one wheel at zero while the
+    # other three report rolling is a sensor or tone-ring fault, not a stopped vehicle.
+    healthy = extract_trip_features(make_trip(seed=1), SPEC)
+    faulty = extract_trip_features(make_trip(seed=1, dropout_wheel="rl"), SPEC)
+    assert faulty["wheel_dropouts_rl"] > 10.0
+    assert all(faulty[f"wheel_dropouts_{p}"] == 0.0 for p in ("fl", "fr", "rr"))
+    assert faulty["standstill_s"] == pytest.approx(healthy["standstill_s"], abs=0.5)
+
+
+def test_every_row_has_every_column_and_a_reason_for_every_nan():
+    row = extract_trip_features(make_trip(seed=2), SPEC)
+    assert list(row) == list(ROW_COLUMNS)
+    nan = {f for f in FEATURE_COLUMNS if math.isnan(row[f])}
+    assert nan == set(reasons(row))
+
+
+def test_a_trip_without_a_stop_has_nan_rest_features_not_zero():
+    samples = make_trip(seed=3, stop_s=1.0)
+    samples = samples[samples["time"] < samples["time"].iloc[-1] - pd.Timedelta(seconds=7)]  # cut the final stop
+    row = extract_trip_features(samples, SPEC)
+    for name in ("yaw_rest_dps", "accel_long_rest_g", "accel_lat_rest_g"):
+        assert math.isnan(row[name])
+        assert reasons(row)[name] == "no_standstill"
+    assert row["standstill_s"] == 0.0
+
+
+def test_a_trip_without_straight_road_at_speed_has_nan_ratio_and_yaw_features_not_zero():
+    row = extract_trip_features(make_trip(seed=4, speed_scale=0.35), SPEC)  # never reaches 8 m/s
+    assert row["cruise_s"] == 0.0
+    for name in (*(f"wheel_ratio_{p}_pct" for p in POSITIONS), "yaw_offset_dps", "yaw_gain", "steer_center_deg"):
+        assert math.isnan(row[name]), name
+        assert reasons(row)[name] == "no_straight_cruise", name
+
+
+def test_wheels_at_zero_with_the_brake_released_are_not_a_standstill():
+    # Passive sensors read 0 below a few km/h: a creeping vehicle with the brake
+    # off must not count as standing still where the brake is logged.
+    samples = make_trip(seed=5)
+    samples["brake"] = False
+    row = extract_trip_features(samples, SPEC)
+    assert row["standstill_s"] == 0.0 and math.isnan(row["yaw_rest_dps"])
+
+
+def test_without_a_brake_signal_standstill_rests_on_wheels_and_quiet_yaw():
+    samples = make_trip(seed=5)
+    samples["brake"] = None
+    row = extract_trip_features(samples, SPEC)
+    assert row["standstill_s"] > 20.0 and math.isfinite(row["yaw_rest_dps"])
+
+
+def test_a_missing_yaw_sensor_makes_yaw_features_nan_and_leaves_wheel_features():
+    samples = make_trip(seed=6)
+    samples["yaw_rate"] = np.nan
+    row = extract_trip_features(samples, SPEC)
+    for name in ("yaw_rest_dps", "yaw_offset_dps", "yaw_gain", "steer_yaw_residual_dps"):
+        assert reasons(row)[name] == "signal_missing"
+    assert all(math.isfinite(row[f"wheel_ratio_{p}_pct"]) for p in POSITIONS)
+    assert "yaw_rate" not in row["signals"].split(",")
+
+
+def test_one_hertz_logs_give_nan_for_features_that_need_a_derivative_or_fast_noise():
+    samples = make_trip(seed=7, rate_hz=1.0, cruise_s=300.0)
+    row = extract_trip_features(samples, SPEC)
+    assert row["sample_rate_hz"] == pytest.approx(1.0)
+    for name in ("wheel_jitter_fl_pct", "accel_long_residual_g", "wheel_accel_disagree_rr_g"):
+        assert reasons(row)[name] == "rate_too_low"
+    assert math.isfinite(row["wheel_ratio_fl_pct"])
+
+
+def test_a_one_kph_wheel_speed_step_is_too_coarse_for_wheel_yaw():
+    # DESIGN.md: a 1 km/h step across a 1.5 m track is already 10 deg/s of wheel-derived yaw.
+    assert KPH_MPS / SPEC["track_rear_m"] * 180 / math.pi == pytest.approx(10.6, abs=0.1)
+    samples = make_trip(seed=8)
+    for p in POSITIONS:
+        samples[f"wheel_speed_{p}"] = np.round(samples[f"wheel_speed_{p}"] / KPH_MPS) * KPH_MPS
+    row = extract_trip_features(samples, SPEC)
+    assert row["resolution_wheel_speed_fl"] == pytest.approx(KPH_MPS, rel=1e-6)
+    for name in ("yaw_offset_dps", "yaw_gain", "lat_residual_g", "wheel_jitter_fl_pct"):
+        assert reasons(row)[name] == "resolution_too_coarse", name
+
+
+def test_a_fine_wheel_speed_step_keeps_the_wheel_yaw_features():
+    samples = make_trip(seed=8)
+    for p in POSITIONS:
+        samples[f"wheel_speed_{p}"] = np.round(samples[f"wheel_speed_{p}"] / (0.01 * KPH_MPS)) * 0.01 * KPH_MPS
+    row = extract_trip_features(samples, SPEC)
+    assert math.isfinite(row["yaw_offset_dps"]) and math.isfinite(row["wheel_jitter_fl_pct"])
+
+
+def test_a_spec_without_geometry_names_the_missing_column():
+    row = extract_trip_features(make_trip(seed=9), {"vehicle_id": "X"})
+    assert reasons(row)["yaw_offset_dps"] == "spec_missing:track_rear_m"
+    assert reasons(row)["steer_yaw_residual_dps"] == "spec_missing:steering_ratio"
+
+
+def test_an_empty_trip_is_all_nan_with_a_reason():
+    row = extract_trip_features(make_trip(seed=1).iloc[:1], SPEC)
+    assert all(reasons(row)[f] == "too_few_samples" for f in FEATURE_COLUMNS)
