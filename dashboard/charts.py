@@ -35,15 +35,15 @@ def _inline(frame: pd.DataFrame) -> dict:
 
 def traces(x: str, x_title: str, y_title: str, title: str, marks: pd.DataFrame | None = None) -> dict:
     """Lines of a long frame (``x`` seconds, ``series``, ``value``), optional event marks at ``x``."""
-    layers = [{"mark": {"type": "line", "strokeWidth": 1.2},
+    layers = [{"params": [{"name": "zoom", "select": "interval", "bind": "scales", "encodings": ["x"]}],
+               "mark": {"type": "line", "strokeWidth": 1.2},
                "encoding": {"x": {"field": x, "type": "quantitative", "title": x_title},
                             "y": {"field": "value", "type": "quantitative", "title": y_title,
                                   "scale": {"zero": False}},
                             "color": _series_colour()}}]
     if marks is not None and not marks.empty:
         layers.append(event_rules(marks, x, "quantitative"))
-    return {"title": title, "height": HEIGHT, "layer": layers,
-            "params": [{"name": "zoom", "select": "interval", "bind": "scales", "encodings": ["x"]}]}
+    return {"title": title, "height": HEIGHT, "layer": layers}
 
 
 def event_rules(marks: pd.DataFrame, x: str, x_type: str) -> dict:
@@ -89,7 +89,7 @@ def drift_history() -> dict:
     ]}
 
 
-def feature_against_band(values: pd.DataFrame, band: dict | None, y_title: str) -> dict:
+def feature_against_band(values: pd.DataFrame, band: dict | None, title: str, y_title: str) -> dict:
     """A feature's trip values (``start_time``, ``value``) over the peer group's p05–p95 band and median."""
     layers = []
     if band is not None:
@@ -106,4 +106,4 @@ def feature_against_band(values: pd.DataFrame, band: dict | None, y_title: str) 
                    "encoding": {"x": TIME_AXIS, "y": {"field": "value", "type": "quantitative", "title": y_title},
                                 "tooltip": [{"field": "start_time", "type": "temporal"},
                                             {"field": "value", "type": "quantitative", "format": ".3f"}]}})
-    return {"height": HEIGHT - 40, "layer": layers}
+    return {"title": title, "height": HEIGHT - 40, "layer": layers}

@@ -90,14 +90,14 @@ PLAN_COLUMNS = ("id", "vehicle_id", "depot", "planned_date", "priority", "pinned
 
 
 def open_plan(store: Store) -> pd.DataFrame:
-    """Open plan entries ordered by date, depot and priority (planned_date as date)."""
+    """Open plan entries ordered by date and priority (planned_date as date)."""
     with connect_readonly(store) as con:
         if con is None or not has_table(con, "plan_entries"):
             frame = pd.DataFrame({c: pd.Series(dtype="object") for c in PLAN_COLUMNS})
         else:
             frame = pd.read_sql_query(
                 f"SELECT {', '.join(PLAN_COLUMNS)} FROM plan_entries WHERE state = 'open' "
-                "ORDER BY planned_date, depot, priority", con)
+                "ORDER BY planned_date, priority", con)
     frame["planned_date"] = pd.to_datetime(frame["planned_date"]).dt.date
     frame["pinned"] = frame["pinned"].astype(bool)
     return frame

@@ -73,10 +73,13 @@ def served(tmp_path_factory):
 def settle(page) -> None:
     """Wait until Streamlit reports the script run finished and the page stopped changing."""
     page.wait_for_selector("[data-testid='stApp']", timeout=30_000)
-    page.wait_for_function(
-        "() => { const a = document.querySelector(\"[data-testid='stApp']\");"
-        " return a && a.getAttribute('data-test-script-state') === 'notRunning'; }", timeout=60_000)
-    page.wait_for_timeout(1500)  # charts and the data grid draw after the run ends
+    for _ in range(2):  # twice: a run can start right after the first one ends (layout, reruns)
+        page.wait_for_timeout(1000)
+        page.wait_for_function(
+            "() => { const a = document.querySelector(\"[data-testid='stApp']\");"
+            " return a && a.getAttribute('data-test-script-state') === 'notRunning'"
+            " && !document.querySelector(\"[data-testid='stSkeleton']\"); }", timeout=60_000)
+    page.wait_for_timeout(1000)  # charts and the data grid draw after the run ends
 
 
 def screenshot(page, path: Path) -> None:
@@ -84,7 +87,7 @@ def screenshot(page, path: Path) -> None:
     height = page.evaluate("() => { const m = document.querySelector(\"[data-testid='stMain']\");"
                            " return m ? m.scrollHeight : document.body.scrollHeight; }")
     page.set_viewport_size({"width": 1500, "height": min(max(1100, height + 40), 7000)})
-    page.wait_for_timeout(800)
+    settle(page)  # a new viewport can make the app run again
     page.screenshot(path=str(path))
     page.set_viewport_size({"width": 1500, "height": 1100})
 

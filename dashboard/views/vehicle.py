@@ -120,7 +120,7 @@ if scores is not None and not scores.empty:
         for i, name in enumerate(chosen):
             frame = values[["start_time", name]].rename(columns={name: "value"})
             grid[i % len(grid)].vega_lite_chart(
-                frame, charts.feature_against_band(frame, bands.get(name), f"{name} ({feature_unit(name)})"),
+                frame, charts.feature_against_band(frame, bands.get(name), name, feature_unit(name)),
                 width="stretch")
         st.caption(f"Shaded: the healthy band (5th–95th percentile) of peer group {peer_group}; dashed: its median.")
 
