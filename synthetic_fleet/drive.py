@@ -70,56 +70,84 @@ class DriveTrace:
     parked: np.ndarray  # parking standstill at trip start and end
 
 
-def _section_phases(style: RoadStyle, budget_s: float, v0: float, rng: np.random.Generator):
-    """Phases (duration_s, end_speed_mps, curvature_1pm) of one road section, and its exit speed."""
-    mean_leg = np.mean(style.cruise_s) + style.stop_prob * np.mean(style.stop_s) + 15.0
-    n = int(3 * budget_s / mean_leg) + 5
+def _per_leg(styles: list[RoadStyle], counts: np.ndarray, name: str) -> np.ndarray:
+    """A RoadStyle field repeated over each section's legs; ranges give shape (2, n_legs)."""
+    values = np.array([getattr(st, name) for st in styles], dtype=float)
+    return np.repeat(values, counts, axis=0).T
+
+
+def _legs(styles: list[RoadStyle], budgets_s: np.ndarray, v0: float, rng: np.random.Generator):
+    """Phases (duration_s, end_speed_mps, curvature_1pm) of all road sections of a trip, drawn at once.
+
+    Each section's legs are drawn generously and cut at the count whose end
+    lies closest to the section's time budget; each section is entered at the
+    speed the previous one left at.
+    """
+    mean_leg = np.array([np.mean(st.cruise_s) + st.stop_prob * np.mean(st.stop_s) + 15.0 for st in styles])
+    counts = (3 * budgets_s / mean_leg).astype(int) + 5
+    n = int(counts.sum())
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]])  # index of each section's first leg
     u = iter(rng.random((21, n)))  # one draw for all the legs' random choices
 
-    def between(lo_hi: tuple[float, float]) -> np.ndarray:
+    def between(lo_hi) -> np.ndarray:
+        lo_hi = np.asarray(lo_hi, dtype=float).reshape(2, -1)
         return lo_hi[0] + (lo_hi[1] - lo_hi[0]) * next(u)
 
     def sign() -> np.ndarray:
         return np.where(next(u) < 0.5, -1.0, 1.0)
 
-    vc = between(style.cruise_mps)
+    def param(name: str) -> np.ndarray:
+        return _per_leg(styles, counts, name)
+
+    vc = between(param("cruise_mps"))
     entry = next(u)
-    stop = entry < style.stop_prob
-    roundabout = ~stop & (entry < style.stop_prob + style.roundabout_prob)
-    stop[0], roundabout[0] = v0 <= 0.0, False
+    stop_p, round_p = param("stop_prob"), param("roundabout_prob")
+    stop = entry < stop_p
+    roundabout = ~stop & (entry < stop_p + round_p)
+    stop[first], roundabout[first] = False, False  # a section is entered on the move
     # Speed at each leg's entry: 0 at a stop, the roundabout speed, or a slow-down.
     r_turn = between((7.0, 18.0))
     r_round = between((12.0, 26.0))
     v_round = np.sqrt(between((1.4, 2.4)) * r_round)
     v_slow = between((0.6, 0.95)) * np.roll(vc, 1)
     v_entry = np.where(stop, 0.0, np.where(roundabout, v_round, v_slow))
-    v_entry[0] = max(v0, 0.0)
-    turn = stop & (next(u) < style.turn_prob)
+    turn = stop & (next(u) < param("turn_prob"))
     v_turn = np.minimum(np.sqrt(between((1.5, 2.8)) * r_turn), 6.0)
     # Phase 1: hold at a stop. Phase 2: intersection turn or roundabout.
-    hold_s = np.where(stop, between(style.stop_s), 0.0)
+    hold_s = np.where(stop, between(param("stop_s")), 0.0)
     entry_s = np.where(turn, between((4.0, 8.0)), np.where(roundabout, between((5.0, 14.0)), 0.0))
-    v_after_entry = np.where(turn, v_turn, v_entry)
     kappa_entry = np.where(turn, sign() / r_turn, np.where(roundabout, 1.0 / r_round, 0.0))
     # Phase 3: accelerate; 4-6: cruise with an optional curve; 7: slow into the next entry.
-    accel_s = np.abs(vc - v_after_entry) / between(style.accel_mps2)
-    cruise_s = between(style.cruise_s)
-    curve_s = np.where(next(u) < style.curve_prob, between((4.0, 20.0)), 0.0)
-    kappa_curve = sign() * between(style.curve_lat_accel_mps2) / vc**2
+    accel = between(param("accel_mps2"))
+    cruise_s = between(param("cruise_s"))
+    curve_s = np.where(next(u) < param("curve_prob"), between((4.0, 20.0)), 0.0)
+    kappa_curve = sign() * between(param("curve_lat_accel_mps2")) / vc**2
+    decel = np.where(next(u) < HARD_BRAKE_SHARE, between((3.5, 5.0)), between(param("decel_mps2")))
+
+    # Cut each section at its budget and chain the sections' speeds.
+    keep = np.zeros(n, dtype=bool)
+    last = np.empty(len(styles), dtype=int)
+    v_in = v0
+    # Leg durations as drawn (a section's first leg is re-entered on the move below).
+    drawn_s = (hold_s + entry_s + cruise_s + curve_s + np.abs(vc - np.where(turn, v_turn, v_entry)) / accel
+               + np.abs(vc - np.roll(v_entry, -1)) / decel)
+    for i, (start, count, budget) in enumerate(zip(first, counts, budgets_s)):
+        v_entry[start] = v_in
+        k = int(np.argmin(np.abs(np.cumsum(drawn_s[start:start + count]) - budget))) + 1
+        keep[start:start + k] = True
+        last[i] = start + k - 1
+        v_in = vc[last[i]]
+    v_after_entry = np.where(turn, v_turn, v_entry)
+    accel_s = np.abs(vc - v_after_entry) / accel
     v_next = np.append(v_entry[1:], vc[-1])
-    decel = np.where(next(u) < HARD_BRAKE_SHARE, between((3.5, 5.0)), between(style.decel_mps2))
+    v_next[last] = vc[last]  # the last kept leg leaves its section at cruise speed
     decel_s = np.abs(vc - v_next) / decel
 
+    zeros = np.zeros(n)
     durations = np.stack([hold_s, entry_s, accel_s, 0.5 * cruise_s, curve_s, 0.5 * cruise_s, decel_s], axis=1)
     speeds = np.stack([v_entry, v_after_entry, vc, vc, vc, vc, v_next], axis=1)
-    zeros = np.zeros(n)
     kappas = np.stack([zeros, kappa_entry, zeros, zeros, kappa_curve, zeros, zeros], axis=1)
-    leg_end = np.cumsum(durations.sum(axis=1))
-    keep = int(np.argmin(np.abs(leg_end - budget_s))) + 1  # the leg count closest to the budget
-    # The last kept leg leaves the section at its cruise speed.
-    durations[keep - 1, 6] = 0.0
-    speeds[keep - 1, 6] = vc[keep - 1]
-    return (durations[:keep].ravel(), speeds[:keep].ravel(), kappas[:keep].ravel(), float(vc[keep - 1]))
+    return durations[keep].ravel(), speeds[keep].ravel(), kappas[keep].ravel(), float(vc[last[-1]])
 
 
 def _trip_phases(drive: str, duration_s: float, rng: np.random.Generator):
@@ -127,23 +155,20 @@ def _trip_phases(drive: str, duration_s: float, rng: np.random.Generator):
     if drive not in DRIVES:
         raise ValueError(f"unknown drive {drive!r}; known: {', '.join(DRIVES)}")
     sections = MIXED_SECTIONS if drive == "mixed" else ((drive, 1.0),)
-    start_hold = rng.uniform(5.0, 20.0)
-    end_hold = rng.uniform(10.0, 30.0)
-    crawl = rng.uniform(1.2, 2.0)
-    park_r = rng.uniform(6.0, 8.0) * rng.choice([-1.0, 1.0], 2)
+    start_hold, end_hold, crawl, park_r0, park_r1, exit_s, park_s, slow_a = rng.random(8)
+    start_hold = 5.0 + 15.0 * start_hold
+    end_hold = 10.0 + 20.0 * end_hold
+    crawl = 1.2 + 0.8 * crawl
+    park_r = (6.0 + 2.0 * park_r0) * (1.0 if park_r1 < 0.5 else -1.0)
     driving_s = max(duration_s - start_hold - end_hold - 30.0, 30.0)
-    dur = [np.array([start_hold, rng.uniform(4.0, 8.0)])]
-    spd = [np.array([0.0, crawl])]
-    kap = [np.array([0.0, 1.0 / park_r[0]])]
-    v = crawl
-    for name, share in sections:
-        d, s, k, v = _section_phases(ROAD_STYLES[name], share * driving_s, v, rng)
-        dur.append(d), spd.append(s), kap.append(k)
-    # Slow down, park with a tight turn, stop and stand.
-    dur.append(np.array([max(v - crawl, 0.0) / rng.uniform(0.8, 2.0), rng.uniform(5.0, 10.0), 1.5, end_hold]))
-    spd.append(np.array([crawl, crawl, 0.0, 0.0]))
-    kap.append(np.array([0.0, 1.0 / park_r[1], 0.0, 0.0]))
-    return np.concatenate(dur), np.concatenate(spd), np.concatenate(kap), start_hold, end_hold
+    d, s, k, v = _legs([ROAD_STYLES[name] for name, _ in sections],
+                       np.array([share for _, share in sections]) * driving_s, crawl, rng)
+    # Leave the parking space with a tight turn ... drive ... slow down, park with a tight turn, stop, stand.
+    dur = np.concatenate([[start_hold, 4.0 + 4.0 * exit_s], d,
+                          [max(v - crawl, 0.0) / (0.8 + 1.2 * slow_a), 5.0 + 5.0 * park_s, 1.5, end_hold]])
+    spd = np.concatenate([[0.0, crawl], s, [crawl, crawl, 0.0, 0.0]])
+    kap = np.concatenate([[0.0, 1.0 / park_r], k, [0.0, -1.0 / park_r, 0.0, 0.0]])
+    return dur, spd, kap, start_hold, end_hold
 
 
 def _boxcar(x: np.ndarray, width_s: float, dt: float) -> np.ndarray:

@@ -17,11 +17,12 @@ from tracktrue.schema import POSITIONS
 SENSOR_FAULT_KINDS: tuple[str, ...] = (
     "tone_ring", "air_gap", "yaw_offset", "yaw_gain", "steer_offset", "accel_long_offset", "accel_lat_offset")
 TYRE_DISTRACTOR_KINDS: tuple[str, ...] = ("tyre_deflation", "tyre_mismatch")
-_PER_WHEEL = frozenset({"tone_ring", "air_gap", "tyre_deflation", "tyre_mismatch"})
+#: Kinds that strike one wheel (their names end in _fl, _fr, _rl or _rr).
+PER_WHEEL_KINDS = frozenset({"tone_ring", "air_gap", "tyre_deflation", "tyre_mismatch"})
 
 
 def _expand(kinds: tuple[str, ...]) -> tuple[str, ...]:
-    return tuple(n for k in kinds for n in ((f"{k}_{p}" for p in POSITIONS) if k in _PER_WHEEL else (k,)))
+    return tuple(n for k in kinds for n in ((f"{k}_{p}" for p in POSITIONS) if k in PER_WHEEL_KINDS else (k,)))
 
 
 #: Every fault name trip_samples accepts (sensor faults, then tyre distractors).
@@ -93,7 +94,7 @@ def parse_fault(name: str) -> FaultName:
     if name not in FAULTS:
         raise ValueError(f"unknown fault {name!r}; known: {', '.join(FAULTS)}")
     head, _, tail = name.rpartition("_")
-    if tail in POSITIONS and head in _PER_WHEEL:
+    if tail in POSITIONS and head in PER_WHEEL_KINDS:
         return FaultName(head, tail)
     return FaultName(name, None)
 

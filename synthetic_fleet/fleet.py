@@ -26,6 +26,7 @@ from tqdm import tqdm
 from synthetic_fleet.export import STYLES, ExportStyle, write_trip_csv
 from synthetic_fleet.faults import (
     LAMP_SEVERITY,
+    PER_WHEEL_KINDS,
     SENSOR_FAULT_KINDS,
     TYRE_DISTRACTOR_KINDS,
     parse_fault,
@@ -133,13 +134,9 @@ def _roles(n: int, rng: np.random.Generator) -> list[str | None]:
     kinds = list(rng.permutation(SENSOR_FAULT_KINDS))
     faults = [kinds[i % len(kinds)] for i in range(n_faulty)]
     faults += [TYRE_DISTRACTOR_KINDS[i % 2] for i in range(n_tyre)]
-    names = [f"{k}_{rng.choice(POSITIONS)}" if parse_kind_is_per_wheel(k) else k for k in faults]
+    names = [f"{k}_{rng.choice(POSITIONS)}" if k in PER_WHEEL_KINDS else k for k in faults]
     roles: list[str | None] = names + [None] * (n - len(names))
     return [roles[i] for i in rng.permutation(n)]
-
-
-def parse_kind_is_per_wheel(kind: str) -> bool:
-    return kind in ("tone_ring", "air_gap") or kind in TYRE_DISTRACTOR_KINDS
 
 
 def _fault_plan(name: str, days: int, lamp_within: bool, rng: np.random.Generator) -> FaultPlan:
