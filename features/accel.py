@@ -13,7 +13,6 @@ import numpy as np
 from features.row import FeatureRow
 from features.signals import (
     TripArrays,
-    median_of_four,
     moving_mean,
     seconds,
     smooth_derivative,
@@ -62,18 +61,15 @@ def calibrated_or_raw(trip: TripArrays, ref: WheelReference) -> np.ndarray:
     return ref.calibrated_wheels if np.isfinite(ref.radius_offset).all() else trip.wheels
 
 
-def wheel_acceleration_reference(trip: TripArrays, ref: WheelReference) -> np.ndarray:
-    """dv/dt of the median of the four (calibrated where possible) wheel speeds, Savitzky–Golay, m/s²."""
-    return smooth_derivative(median_of_four(calibrated_or_raw(trip, ref)), trip)
-
-
-def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Windows, ref: WheelReference) -> None:
+def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
     """accel_long_residual_g = Σ (a_x − dv/dt)·v·dt / Σ v·dt over moving, / g0, in g.
 
     The distance-weighted mean of a_x − dv/dt equals offset + g·Δh/distance
     (DESIGN.md), Δh → 0 over round trips. dv/dt is the Savitzky–Golay
     derivative of the median wheel speed, so one wheel's false accelerations
-    do not enter. Sources: longitudinal accelerometer vs wheel speeds.
+    do not enter (uncalibrated: a radius scale error s changes the weighted
+    mean by s·Δ(v²/2)/distance, zero from stop to stop). Sources: longitudinal
+    accelerometer vs wheel speeds.
     """
     name = "accel_long_residual_g"
     if not trip.has("accel_long"):
@@ -82,7 +78,7 @@ def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Wind
     if not trip.rate_hz >= DERIVATIVE_MIN_RATE_HZ:
         row.nan(name, "rate_too_low")
         return
-    dvdt = wheel_acceleration_reference(trip, ref)
+    dvdt = windows.accel
     residual = trip.signals["accel_long"] - dvdt
     usable = windows.moving & np.isfinite(residual)
     weight = windows.speed[usable] * trip.dt[usable]

@@ -82,7 +82,7 @@ def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, obj
     steer_center_feature(row, trip, windows)
     steer_yaw_residual_feature(row, trip, vehicle, windows, ref, row.values["steer_center_deg"] * DEG_RAD)
     accel_rest_features(row, trip, windows)
-    accel_long_residual_feature(row, trip, windows, ref)
+    accel_long_residual_feature(row, trip, windows)
     lat_residual_feature(row, trip, vehicle, windows, ref)
     wheel_accel_features(row, trip, windows, ref)
 

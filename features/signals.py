@@ -10,10 +10,12 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
-from scipy.signal import savgol_filter
+from scipy.ndimage import correlate1d, uniform_filter1d
+from scipy.signal import savgol_coeffs
 
 from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
 
@@ -34,6 +36,7 @@ class TripArrays:
     brake: np.ndarray  #: 1.0 pressed, 0.0 released, NaN unknown
     gap_after: np.ndarray  #: True where the step to the next sample is a gap
     resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
+    logged: frozenset[str] = frozenset()  #: signals with at least one sample present
 
     @property
     def n(self) -> int:
@@ -49,7 +52,7 @@ class TripArrays:
 
     def has(self, name: str) -> bool:
         """A signal counts as logged if any of its samples is present."""
-        return bool(np.isfinite(self.signal(name)).any())
+        return name in self.logged
 
     def wheel(self, pos: str) -> np.ndarray:
         return self.wheels[POSITIONS.index(pos)]
@@ -85,22 +88,25 @@ def trip_arrays(samples: pd.DataFrame) -> TripArrays:
     wheels = np.vstack([column(c) for c in WHEEL_SPEED_COLUMNS]) if t.size else np.zeros((4, 0))
     others = {c: column(c) for c in NUMERIC_SIGNALS if c not in WHEEL_SPEED_COLUMNS}
     brake = column("brake")
-    resolution = {c: smallest_step(column(c)) for c in NUMERIC_SIGNALS}
+    every = {**dict(zip(WHEEL_SPEED_COLUMNS, wheels)), **others, "brake": brake}
+    logged = frozenset(name for name, x in every.items() if np.isfinite(x).any())
+    resolution = {c: smallest_step(every[c]) for c in NUMERIC_SIGNALS}
     return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
-                      gap_after=gap_after, resolution=resolution)
+                      gap_after=gap_after, resolution=resolution, logged=logged)
 
 
 def smallest_step(values: np.ndarray) -> float:
-    """Smallest non-zero difference between distinct values: the logger's resolution.
+    """Smallest non-zero change between consecutive samples: the logger's resolution.
 
-    Rounded to 1e-9 first so float noise from unit conversion is not taken for
-    a finer step. NaN if fewer than two distinct values.
+    A slowly varying quantised signal steps by one quantum somewhere in any
+    trip, so this finds the quantum without sorting. Rounded to 1e-9 first so
+    float noise from unit conversion is not taken for a finer step. NaN if the
+    signal never changes.
     """
-    finite = values[np.isfinite(values)]
-    distinct = np.unique(np.round(finite, 9))
-    if distinct.size < 2:
-        return np.nan
-    return float(np.diff(distinct).min())
+    steps = np.abs(np.diff(values[np.isfinite(values)]))
+    steps = np.round(steps, 9)
+    steps = steps[steps > 0]
+    return float(steps.min()) if steps.size else np.nan
 
 
 def window_samples(seconds: float, rate_hz: float, minimum: int = 1) -> int:
@@ -111,17 +117,19 @@ def window_samples(seconds: float, rate_hz: float, minimum: int = 1) -> int:
 
 
 def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
-    """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid)."""
+    """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid).
+
+    At the ends the window shrinks to the samples that exist.
+    """
     valid = np.isfinite(x)
-    csum = np.concatenate(([0.0], np.cumsum(np.where(valid, x, 0.0))))
-    ccount = np.concatenate(([0], np.cumsum(valid)))
-    idx = np.arange(x.size)
-    half = width // 2
-    hi = np.minimum(idx + half + 1, x.size)
-    lo = np.maximum(idx - half, 0)
-    count = ccount[hi] - ccount[lo]
+    if valid.all():
+        total = uniform_filter1d(x, width, mode="constant", cval=0.0)
+        count = uniform_filter1d(np.ones(x.size), width, mode="constant", cval=0.0)
+        return total / count
+    total = uniform_filter1d(np.where(valid, x, 0.0), width, mode="constant", cval=0.0)
+    count = uniform_filter1d(valid.astype(np.float64), width, mode="constant", cval=0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(count > 0, (csum[hi] - csum[lo]) / count, np.nan)
+        return np.where(count > 0.5 / width, total / count, np.nan)
 
 
 def moving_std(x: np.ndarray, width: int) -> np.ndarray:
@@ -144,10 +152,11 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
 def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
     """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second.
 
-    Savitzky & Golay (1964), scipy.signal.savgol_filter. The window is at least
+    Savitzky & Golay (1964), the weights from scipy.signal.savgol_coeffs. The window is at least
     5 samples, so at low rates it is longer than ``window_s`` (a quadratic
     through fewer points follows the noise). NaN runs are bridged linearly
-    before filtering and set back to NaN after; samples near a time gap are NaN.
+    before filtering and set back to NaN after; samples near a time gap or
+    within half a window of the trip's ends are NaN.
     """
     w = window_samples(window_s, trip.rate_hz, minimum=5)
     out = np.full(x.size, np.nan)
@@ -156,23 +165,37 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
         return out
     idx = np.arange(x.size)
     filled = x if valid.all() else np.interp(idx, idx[valid], x[valid])
-    out = savgol_filter(filled, w, polyorder=2, deriv=1, delta=1.0 / trip.rate_hz, mode="interp")
+    out = correlate1d(filled, _savgol_derivative_weights(w, 1.0 / trip.rate_hz), mode="nearest")
     out[~valid | near_gap(trip, w // 2)] = np.nan
+    out[: w // 2] = out[x.size - w // 2:] = np.nan  # the trip's ends have no full window
     return out
+
+
+@lru_cache(maxsize=64)
+def _savgol_derivative_weights(width: int, delta: float) -> np.ndarray:
+    """Savitzky–Golay first-derivative weights (quadratic), ordered for correlation."""
+    return savgol_coeffs(width, 2, deriv=1, delta=delta, use="dot")
 
 
 def median_of_four(values: np.ndarray) -> np.ndarray:
     """Per-sample median of the (4, n) wheel array, ignoring NaN wheels.
 
     The median of four independent sensors is a vote: one wheel reading zero or
-    jittering cannot move it far.
+    jittering cannot move it far. All four present: (sum − max − min) / 2.
     """
+    out = (values.sum(axis=0) - values.max(axis=0) - values.min(axis=0)) / 2.0
+    partial = ~np.isfinite(out)
+    if partial.any():
+        out[partial] = _nan_median_of_four(values[:, partial])
+    return out
+
+
+def _nan_median_of_four(values: np.ndarray) -> np.ndarray:
     s = np.sort(values, axis=0)  # NaN sort last
     k = np.isfinite(values).sum(axis=0)
-    mid_even = 0.5 * (s[np.maximum(k // 2 - 1, 0), np.arange(s.shape[1])] + s[np.minimum(k // 2, 3), np.arange(s.shape[1])])
-    mid_odd = s[np.minimum(k // 2, 3), np.arange(s.shape[1])]
-    out = np.where(k % 2 == 0, mid_even, mid_odd)
-    return np.where(k > 0, out, np.nan)
+    cols = np.arange(s.shape[1])
+    lo, hi = s[np.maximum((k - 1) // 2, 0), cols], s[np.minimum(k // 2, 3), cols]
+    return np.where(k > 0, 0.5 * (lo + hi), np.nan)
 
 
 def median_of_three(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -182,7 +205,7 @@ def median_of_three(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 def seconds(mask: np.ndarray, trip: TripArrays) -> float:
     """Time covered by the samples in ``mask``, in s."""
-    return float(trip.dt[mask].sum())
+    return float(np.sum(trip.dt, where=mask))
 
 
 def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: float = 0.0) -> np.ndarray:
