@@ -199,9 +199,9 @@ def _analog_v(values_mps2: np.ndarray) -> np.ndarray:
     return np.clip(np.round(volts / ANALOG_STEP_V) * ANALOG_STEP_V, 0.0, 5.0)
 
 
-def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str, start_ms: int, time_ms: np.ndarray,
-                   columns: dict[str, np.ndarray], polled: bool, analog: bool) -> int:
-    """Write one trip's rows in ``style``; returns the bytes written. ``columns`` are canonical SI."""
+def _cells(style: ExportStyle, *, vin: str, start_ms: np.ndarray, time_ms: np.ndarray,
+           columns: dict[str, np.ndarray], polled: bool, analog: bool) -> pa.Table:
+    """The text of every cell, one column per export column; ``start_ms`` and ``time_ms`` per row."""
     n = len(time_ms)
     chosen = style.columns + (style.analog_columns if analog else ())
     numeric = [c for c in chosen if c.signal not in _TEXT_SIGNALS]
@@ -218,7 +218,7 @@ def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str,
             cells.append(number_cells[col])
         elif col.signal == "time":
             cells.append(_relative_seconds(time_ms, style.decimal_comma) if style.relative_time
-                         else iso_utc_ms(np.int64(start_ms) + time_ms))
+                         else iso_utc_ms(start_ms + time_ms))
         elif col.signal == "vin":
             cells.append(_constant_text(vin, np.ones(n, dtype=bool)))
         elif col.signal == "dtc":
@@ -227,16 +227,42 @@ def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str,
             cells.append(_constant_text(codes[lit][0] if lit.any() else None, lit))
         else:
             cells.append(_SWITCH.take(pa.array(columns[col.signal].astype(np.int8))))
-    names = [c.header for c in chosen]
-    lines = []
-    if style.metadata:
-        start = np.datetime_as_string(np.datetime64(start_ms, "ms"), unit="s", timezone="UTC")
-        lines += [f"# vehicle: {vehicle_id}", f"# start: {start}", f"# rows: {n}"]
-    lines.append(style.delimiter.join(names))
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with open(path, "wb") as fh:
-        fh.write(("\n".join(lines) + "\n").encode("utf-8"))
-        pacsv.write_csv(pa.Table.from_arrays(cells, names=[f"c{i}" for i in range(len(cells))]), fh,
-                        pacsv.WriteOptions(include_header=False, delimiter=style.delimiter, quoting_style="none",
-                                           batch_size=8192))
-        return fh.tell()
+    return pa.Table.from_arrays(cells, names=[c.header for c in chosen])
+
+
+def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, vin: str, starts_ms: list[int],
+                    times_ms: list[np.ndarray], columns: list[dict[str, np.ndarray]], polled: bool,
+                    analog: bool) -> list[int]:
+    """Write several trips of one vehicle, one file each; returns the bytes written per file.
+
+    The cells of all the trips are formatted in one pass (a trip's fixed cost
+    of some hundred array calls is paid once per vehicle), then each file
+    gets its slice of the rows. ``columns`` are canonical SI, one dict per trip.
+    """
+    lengths = np.array([len(t) for t in times_ms])
+    merged = {k: np.concatenate([c[k] for c in columns]) for k in columns[0]}
+    table = _cells(style, vin=vin, start_ms=np.repeat(np.asarray(starts_ms, dtype=np.int64), lengths),
+                   time_ms=np.concatenate(times_ms), columns=merged, polled=polled, analog=analog)
+    options = pacsv.WriteOptions(include_header=False, delimiter=style.delimiter, quoting_style="none",
+                                 batch_size=8192)
+    header = style.delimiter.join(table.column_names)
+    sizes = []
+    for path, start_ms, first, n in zip(paths, starts_ms, np.cumsum(lengths) - lengths, lengths):
+        lines = []
+        if style.metadata:
+            start = np.datetime_as_string(np.datetime64(int(start_ms), "ms"), unit="s", timezone="UTC")
+            lines += [f"# vehicle: {vehicle_id}", f"# start: {start}", f"# rows: {n}"]
+        lines.append(header)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        with open(path, "wb") as fh:
+            fh.write(("\n".join(lines) + "\n").encode("utf-8"))
+            pacsv.write_csv(table.slice(int(first), int(n)), fh, options)
+            sizes.append(fh.tell())
+    return sizes
+
+
+def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str, start_ms: int, time_ms: np.ndarray,
+                   columns: dict[str, np.ndarray], polled: bool, analog: bool) -> int:
+    """Write one trip's rows in ``style``; returns the bytes written. ``columns`` are canonical SI."""
+    return write_trips_csv([path], style, vehicle_id=vehicle_id, vin=vin, starts_ms=[start_ms], times_ms=[time_ms],
+                           columns=[columns], polled=polled, analog=analog)[0]

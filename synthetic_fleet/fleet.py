@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 from tqdm import tqdm
 
-from synthetic_fleet.export import STYLES, ExportStyle, write_trip_csv
+from synthetic_fleet.export import STYLES, ExportStyle, write_trips_csv
 from synthetic_fleet.faults import (
     LAMP_SEVERITY,
     PER_WHEEL_KINDS,
@@ -344,28 +344,21 @@ def _write_tables(out: Path, plan: FleetPlan) -> None:
         out / "service_history.csv", index=False, lineterminator="\n")
 
 
-def _write_trip(out: Path, trip: TripPlan, seed: int, fleet_rate_hz: float, analog: bool) -> tuple[int, int]:
-    v = trip.vehicle
-    rng = np.random.default_rng([seed, v.index, 2, trip.number])
-    sim = simulate_trip(v.spec, v.health, trip.condition, vehicle_id=v.vehicle_id, start=trip.start,
-                        drive=trip.drive, duration_s=trip.duration_s, fleet_rate_hz=fleet_rate_hz,
-                        logger=v.logger, rng=rng)
-    name = f"{v.vehicle_id}_{trip.start.strftime('%Y%m%dT%H%M%SZ')}.csv"
-    size = write_trip_csv(out / "logs" / v.vehicle_id / name, v.style, vehicle_id=v.vehicle_id, vin=v.vin,
-                          start_ms=trip.start.value // 1_000_000, time_ms=sim.time_ms, columns=sim.columns,
-                          polled=v.logger.name == "polled", analog=analog)
-    return sim.n_samples, size
-
-
 def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: float,
                    analog: bool) -> tuple[int, int, int]:
     """(samples, bytes, files) of one vehicle's trips; a unit of work for a worker process."""
-    samples = size = 0
-    for trip in trips:
-        n, b = _write_trip(out, trip, seed, fleet_rate_hz, analog)
-        samples += n
-        size += b
-    return samples, size, len(trips)
+    if not trips:
+        return 0, 0, 0
+    v = trips[0].vehicle
+    sims = [simulate_trip(v.spec, v.health, t.condition, vehicle_id=v.vehicle_id, start=t.start, drive=t.drive,
+                          duration_s=t.duration_s, fleet_rate_hz=fleet_rate_hz, logger=v.logger,
+                          rng=np.random.default_rng([seed, v.index, 2, t.number])) for t in trips]
+    folder = out / "logs" / v.vehicle_id
+    sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in trips],
+                            v.style, vehicle_id=v.vehicle_id, vin=v.vin,
+                            starts_ms=[t.start.value // 1_000_000 for t in trips], times_ms=[s.time_ms for s in sims],
+                            columns=[s.columns for s in sims], polled=v.logger.name == "polled", analog=analog)
+    return sum(s.n_samples for s in sims), sum(sizes), len(trips)
 
 
 def _default_workers(plan: FleetPlan, rate_hz: float) -> int:

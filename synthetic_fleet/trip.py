@@ -16,8 +16,8 @@ from synthetic_fleet.drive import drive_trace
 from synthetic_fleet.faults import LAMP_SEVERITY, check_confounders, parse_fault
 from synthetic_fleet.logger import LOGGERS, LoggerProfile, apply_logger, logger_rate_hz
 from synthetic_fleet.platforms import Platform, platform
+from synthetic_fleet.scenario import DEPOTS, synthetic_vin
 from synthetic_fleet.sensors import SensorHealth, TripCondition, measure
-from synthetic_fleet.scenario import synthetic_vin, DEPOTS
 from tracktrue.ids import trip_id
 from tracktrue.schema import POSITIONS, SAMPLE_COLUMNS
 
@@ -32,7 +32,7 @@ PARKING_SLOPE = (0.06, 0.12)
 
 @dataclass(frozen=True)
 class SimulatedTrip:
-    """A trip's logged rows: canonical SI columns, time as integer ns since the epoch (UTC)."""
+    """A trip's logged rows: canonical SI columns, row times as integer milliseconds from ``start`` (UTC)."""
 
     vehicle_id: str
     trip_id: str
@@ -59,6 +59,7 @@ class SimulatedTrip:
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
                   start: pd.Timestamp, drive: str, duration_s: float, fleet_rate_hz: float,
                   logger: LoggerProfile, rng: np.random.Generator) -> SimulatedTrip:
+    """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log one trip."""
     rate = logger_rate_hz(logger, fleet_rate_hz)
     trace = drive_trace(drive, duration_s, rate, rng, cond.park_grade_start, cond.park_grade_end)
     signals = measure(trace, spec, health, cond, rng)
