@@ -46,9 +46,12 @@ RESOLUTION_COLUMNS: tuple[str, ...] = tuple(f"resolution_{s}" for s in NUMERIC_S
 STEERFIT_COLUMNS: tuple[str, ...] = (
     "steerfit_rr", "steerfit_rrv2", "steerfit_rrv4", "steerfit_rvs", "steerfit_rv3s", "steerfit_s",
 )
+#: What the on-board monitor said during the trip (models/ tells lamp events from interventions).
+LAMP_COLUMNS: tuple[str, ...] = ("lamp_abs_on", "lamp_esc_on", "dtc")
 #: Every column extract_trip_features returns, in order.
 ROW_COLUMNS: tuple[str, ...] = (
-    *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS, "nan_reasons",
+    *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *RESOLUTION_COLUMNS, *LAMP_COLUMNS, *STEERFIT_COLUMNS,
+    "nan_reasons",
 )
 #: Signals whose missing samples count towards missing_fraction (when logged at all).
 CORE_SIGNALS: tuple[str, ...] = tuple(s for s in NUMERIC_SIGNALS if s != "vehicle_speed")
@@ -68,6 +71,7 @@ def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, obj
         row.nan_all(FEATURE_COLUMNS, "too_few_samples")
         out = row.as_dict()
         out.update(_empty_quality(samples))
+        out.update(_lamps(samples))
         return {c: out.get(c, np.nan) for c in ROW_COLUMNS}
     trip = trip_arrays(samples)
     windows = find_windows(trip, vehicle)
@@ -88,6 +92,7 @@ def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, obj
 
     out = row.as_dict()
     out.update(_quality(trip, windows, distance_km))
+    out.update(_lamps(samples))
     out.update(steering_fit_sums(trip, vehicle, windows))
     return {c: out[c] for c in ROW_COLUMNS}
 
@@ -107,6 +112,17 @@ def _quality(trip: TripArrays, windows, distance_km: float) -> dict[str, object]
         "signals": ",".join(s for s in (*NUMERIC_SIGNALS, "brake") if trip.has(s)),
     }
     out.update({f"resolution_{s}": trip.resolution[s] for s in NUMERIC_SIGNALS})
+    return out
+
+
+def _lamps(samples: pd.DataFrame) -> dict[str, object]:
+    """Whether each lamp was lit at any sample, and the distinct trouble codes ("" when none)."""
+    out: dict[str, object] = {}
+    for name in ("lamp_abs", "lamp_esc"):
+        lit = samples[name] if name in samples.columns else pd.Series(dtype="boolean")
+        out[f"{name}_on"] = bool(lit.astype("boolean").fillna(False).any())
+    codes = samples["dtc"].dropna().astype(str) if "dtc" in samples.columns else pd.Series(dtype=str)
+    out["dtc"] = ",".join(sorted(c for c in codes.unique() if c.strip()))
     return out
 
 

@@ -122,7 +122,8 @@ def _previous_rows(store: Store, rebuild: bool) -> pd.DataFrame:
 
 def _empty_rows() -> pd.DataFrame:
     frame = pd.DataFrame({c: pd.Series(dtype=float) for c in TRIP_FEATURES_COLUMNS})
-    return frame.astype({"trip_id": str, "vehicle_id": str, "platform": str, "signals": str,
+    return frame.astype({"trip_id": str, "vehicle_id": str, "platform": str, "signals": str, "dtc": str,
+                         "lamp_abs_on": bool, "lamp_esc_on": bool,
                          "nan_reasons": str, MONTH_COLUMN: str, "start_time": "datetime64[us, UTC]"})
 
 

@@ -118,3 +118,13 @@ def test_a_spec_without_geometry_names_the_missing_column():
 def test_an_empty_trip_is_all_nan_with_a_reason():
     row = extract_trip_features(make_trip(seed=1).iloc[:1], SPEC)
     assert all(reasons(row)[f] == "too_few_samples" for f in FEATURE_COLUMNS)
+
+
+def test_lamps_and_trouble_codes_are_summarised_per_trip():
+    samples = make_trip(seed=2)
+    assert not extract_trip_features(samples, SPEC)["lamp_abs_on"]
+    samples.loc[samples.index[100:110], "lamp_esc"] = True
+    samples["dtc"] = samples["dtc"].astype(object)
+    samples.loc[samples.index[100], "dtc"] = "TT-Y01"
+    row = extract_trip_features(samples, SPEC)
+    assert row["lamp_esc_on"] and not row["lamp_abs_on"] and row["dtc"] == "TT-Y01"
