@@ -15,7 +15,14 @@ from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
 
-DEMO_INPUT = "demo_fleet"
+#: The demo's synthetic logs live beside the store, not inside it: they are
+#: input like any fleet's exports, and ingest never reads the store's own files.
+DEMO_FLEET_SUFFIX = "-demo-fleet"
+
+
+def demo_fleet_dir(store: Store) -> Path:
+    root = store.root.resolve()
+    return root.with_name(root.name + DEMO_FLEET_SUFFIX)
 
 
 def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, progress: bool) -> int:
@@ -27,7 +34,7 @@ def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, 
 
     n_vehicles = n_vehicles or DEMO_VEHICLES
     days = days or DEMO_DAYS
-    fleet_dir = store.root / DEMO_INPUT
+    fleet_dir = demo_fleet_dir(store)
     t0 = time.perf_counter()
 
     _step(1, "generate the synthetic demo fleet")
@@ -37,7 +44,7 @@ def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, 
         print(f"  {fleet_dir} already holds this fleet (same size and seed); reusing it")
     else:
         summary = generate_fleet(fleet_dir, n_vehicles=n_vehicles, days=days, seed=seed, progress=progress)
-        marker.write_text(json.dumps(params))
+        marker.write_text(json.dumps(params))  # written last: a killed run regenerates
         print(_indent(summary.describe()))
 
     _step(2, "ingest the CSV logs")
