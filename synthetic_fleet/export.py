@@ -99,17 +99,25 @@ STYLES: dict[str, ExportStyle] = {
 _TABLE_STEPS = 30_000
 
 
+def _fixed_text(steps: np.ndarray, decimals: int, point: str, valid: np.ndarray | None = None) -> pa.Array:
+    """Text of integer multiples of 10**-decimals with fixed decimals ("-12.30"); invalid → empty cell."""
+    whole, frac = np.divmod(np.abs(steps).astype(np.int64), 10**decimals)
+    sign = pa.DictionaryArray.from_arrays(pa.array((steps < 0).astype(np.int8)), pa.array(["", "-"]))
+    parts = [sign.cast(pa.string()), pc.cast(pa.array(whole, mask=None if valid is None else ~valid), pa.string())]
+    if decimals:
+        parts += [pa.array(np.full(len(steps), point)), _fraction_digits(decimals).take(pa.array(frac))]
+    return pc.binary_join_element_wise(*parts, "")
+
+
+@functools.lru_cache(maxsize=None)
+def _fraction_digits(decimals: int) -> pa.Array:
+    return pa.array([f"{i:0{decimals}d}" for i in range(10**decimals)])
+
+
 @functools.lru_cache(maxsize=None)
 def _number_table(decimals: int, point: str) -> pa.Array:
-    """Text of every multiple of 10**-decimals in ±_TABLE_STEPS, fixed decimals ("12.30")."""
-    steps = np.arange(-_TABLE_STEPS, _TABLE_STEPS + 1)
-    whole, frac = np.divmod(np.abs(steps), 10**decimals)
-    sign = pa.DictionaryArray.from_arrays(pa.array((steps < 0).astype(np.int8)), pa.array(["", "-"]))
-    parts = [sign.cast(pa.string()), pc.cast(pa.array(whole), pa.string())]
-    if decimals:
-        fracs = pa.array([f"{i:0{decimals}d}" for i in range(10**decimals)])
-        parts += [pa.array(np.full(len(steps), point)), fracs.take(pa.array(frac))]
-    return pc.binary_join_element_wise(*parts, "")
+    """Text of every multiple of 10**-decimals in ±_TABLE_STEPS."""
+    return _fixed_text(np.arange(-_TABLE_STEPS, _TABLE_STEPS + 1), decimals, point)
 
 
 def _numbers(values: np.ndarray, decimals: np.ndarray, decimal_comma: bool) -> list[pa.Array]:
@@ -122,15 +130,14 @@ def _numbers(values: np.ndarray, decimals: np.ndarray, decimal_comma: bool) -> l
     finite = np.isfinite(values)
     steps = np.rint(np.where(finite, values, 0.0) * 10.0 ** decimals[:, None])
     inside = np.abs(steps).max(axis=1, initial=0.0) <= _TABLE_STEPS
-    index = (steps + _TABLE_STEPS).astype(np.int32)
+    index = (np.clip(steps, -_TABLE_STEPS, _TABLE_STEPS) + _TABLE_STEPS).astype(np.int32)
     point = "," if decimal_comma else "."
     out = []
     for i, d in enumerate(decimals):
         if inside[i]:
             out.append(_number_table(int(d), point).take(pa.array(index[i], mask=~finite[i])))
-        else:  # beyond the table (never in our scenario): Arrow's own float formatting
-            text = pc.cast(pa.array(np.round(values[i], d) + 0.0, from_pandas=True), pa.string())
-            out.append(pc.replace_substring(text, ".", ",") if decimal_comma else text)
+        else:  # a column reaching beyond the table: the same text, built for its own values
+            out.append(_fixed_text(steps[i], int(d), point, finite[i]))
     return out
 
 
@@ -138,10 +145,7 @@ def _relative_seconds(time_ms: np.ndarray, decimal_comma: bool) -> pa.Array:
     """Seconds with three decimals from integer milliseconds."""
     seconds, milli = np.divmod(time_ms, 1000)
     whole = pc.cast(pa.array(seconds), pa.string())
-    return pc.binary_join_element_wise(whole, _MILLI.take(pa.array(milli)), "," if decimal_comma else ".")
-
-
-_MILLI = pa.array([f"{i:03d}" for i in range(1000)])
+    return pc.binary_join_element_wise(whole, _fraction_digits(3).take(pa.array(milli)), "," if decimal_comma else ".")
 
 
 def _fixed_width_text(chars: np.ndarray) -> pa.Array:
