@@ -115,7 +115,8 @@ def _tyre_fault_factor(cond: TripCondition, sign: float) -> np.ndarray:
 
 
 def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
-                   centre: np.ndarray, noise: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+                   centre: np.ndarray, noise: np.ndarray, rough_rng: np.random.Generator,
+                   fault_rng: np.random.Generator) -> np.ndarray:
     """Wheel-speed readings (4, n) from wheel-centre speeds (4, n) and unit normal noise (4, n)."""
     n = len(trace.t_s)
     dt = trace.t_s[1] - trace.t_s[0] if n > 1 else 0.1
@@ -129,16 +130,17 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
     # radius, so a smaller tyre (or more slip) reads faster.
     wheels = centre * (1.0 + slip) / radius[:, None] + noise * (WHEEL_NOISE_MPS + WHEEL_NOISE_FRAC * centre)
     if cond.rough_road:
-        ripple = rng.standard_normal(n)  # common to all wheels: the body bounces, every wheel sees it
+        ripple = rough_rng.standard_normal(n)  # common to all wheels: the body bounces, every wheel sees it
         ripple = np.convolve(ripple, np.ones(3) / np.sqrt(3), mode="same")
-        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[None, :] + ROUGH_WHEEL_FRAC * rng.standard_normal((4, n))
+        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[None, :] + ROUGH_WHEEL_FRAC * rough_rng.standard_normal((4, n))
     fault = parse_fault(cond.fault) if cond.fault else None
     if fault is not None and fault.kind == "tone_ring" and cond.severity > 0:
         i = POSITIONS.index(fault.position)
         v = wheels[i]
-        angle = np.cumsum(v) * dt / spec.tyre_radius_m + rng.uniform(0, 2 * np.pi)
+        angle = np.cumsum(v) * dt / spec.tyre_radius_m + fault_rng.uniform(0, 2 * np.pi)
         periodic = np.sin(angle) + 0.5 * np.sin(2 * angle + 1.3)
-        steps = (rng.random(n) < min(0.3, MAG["tone_ring_step_prob"] * cond.severity)) * rng.standard_normal(n)
+        steps = (fault_rng.random(n) < min(0.3, MAG["tone_ring_step_prob"] * cond.severity)) \
+            * fault_rng.standard_normal(n)
         wheels[i] = v * (1.0 + cond.severity * (MAG["tone_ring_error_frac"] * periodic
                                                 + MAG["tone_ring_step_frac"] * steps))
     np.maximum(wheels, 0.0, out=wheels)
@@ -148,14 +150,20 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
         # gap widens, the speed below which it is too weak to count teeth rises.
         i = POSITIONS.index(fault.position)
         cutoff = CUTOFF_MPS[spec.wheel_sensor_kind] + MAG["air_gap_dropout_speed_mps"] * cond.severity**1.2
-        runout = np.exp(0.12 * rng.standard_normal(n))  # ring and bearing runout modulate the amplitude
+        runout = np.exp(0.12 * fault_rng.standard_normal(n))  # ring and bearing runout modulate the amplitude
         wheels[i, wheels[i] * runout < cutoff] = 0.0
     return wheels
 
 
 def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripCondition,
             rng: np.random.Generator) -> dict[str, np.ndarray]:
-    """Canonical SI signals as the sensors report them (before any logger artefacts)."""
+    """Canonical SI signals as the sensors report them (before any logger artefacts).
+
+    Sensor noise, rough-road vibration and fault randomness draw on separate
+    streams, so one trip with and without a fault or confounder differs by
+    exactly that fault or confounder.
+    """
+    noise_rng, rough_rng, fault_rng = rng.spawn(3)
     n = len(trace.t_s)
     v = trace.speed_mps
     k_us_rad_per_g = spec.understeer_gradient_deg_per_g * DEG_RAD * (1.0 + spec.load_understeer_change * cond.load)
@@ -163,8 +171,8 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     road_wheel = road_wheel_angle_for_curvature(v, trace.curvature_1pm, spec.wheelbase_m, k)
     yaw = yaw_rate_single_track(v, road_wheel, spec.wheelbase_m, k)
     centre = wheel_centre_speeds(v, yaw, spec.wheelbase_m, spec.track_front_m, spec.track_rear_m)
-    noise = rng.standard_normal((8, n))  # 4 wheels, yaw, steering, 2 accelerometers
-    wheels = _wheel_signals(trace, spec, health, cond, centre, noise[:4], rng)
+    noise = noise_rng.standard_normal((8, n))  # 4 wheels, yaw, steering, 2 accelerometers
+    wheels = _wheel_signals(trace, spec, health, cond, centre, noise[:4], rough_rng, fault_rng)
 
     sensor_c = cond.ambient_c + WARMUP_C * (1.0 - np.exp(-trace.t_s / WARMUP_TAU_S)) - REFERENCE_C
     rough = 1.0 if cond.rough_road else 0.0

@@ -61,8 +61,9 @@ def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, 
                   logger: LoggerProfile, rng: np.random.Generator) -> SimulatedTrip:
     """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log one trip."""
     rate = logger_rate_hz(logger, fleet_rate_hz)
-    trace = drive_trace(drive, duration_s, rate, rng, cond.park_grade_start, cond.park_grade_end)
-    signals = measure(trace, spec, health, cond, rng)
+    drive_rng, sensor_rng, logger_rng = rng.spawn(3)  # a fault changes nothing but its own signals
+    trace = drive_trace(drive, duration_s, rate, drive_rng, cond.park_grade_start, cond.park_grade_end)
+    signals = measure(trace, spec, health, cond, sensor_rng)
     lamp = (np.zeros(len(trace.t_s), dtype=bool) if cond.lamp_from_s is None
             else trace.t_s >= cond.lamp_from_s)
     fault = parse_fault(cond.fault) if cond.fault else None
@@ -71,7 +72,7 @@ def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, 
     signals["lamp_esc"] = lamp & esc_lit
     code = fault.trouble_code if fault and (abs_lit or esc_lit) else None
     signals["dtc"] = np.where(lamp & (code is not None), code, None).astype(object)
-    time_ms, logged = apply_logger(signals, trace.t_s, rate, logger, rng)
+    time_ms, logged = apply_logger(signals, trace.t_s, rate, logger, logger_rng)
     start = pd.Timestamp(start)
     start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
     first = start + pd.Timedelta(milliseconds=int(time_ms[0]))
@@ -118,11 +119,11 @@ def trip_samples(platform_name: str = "compact_van", *, fault: str | None = None
         raise ValueError(f"fault_severity must be >= 0, got {fault_severity}")
     if not rate_hz > 0 or not duration_s > 0:
         raise ValueError("rate_hz and duration_s must be positive")
-    vehicle_rng, trip_rng = (np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(2))
+    vehicle_rng, condition_rng, trip_rng = (np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(3))
     health = SensorHealth.draw(vehicle_rng)
     lit = fault is not None and parse_fault(fault).is_sensor_fault and fault_severity >= LAMP_SEVERITY
     cond = TripCondition(fault=fault, severity=fault_severity if fault else 0.0, lamp_from_s=0.0 if lit else None)
-    cond = confounded_condition(cond, confounders, trip_rng)
+    cond = confounded_condition(cond, confounders, condition_rng)
     vid = f"SIM-{platform_name}-{seed}"
     trip = simulate_trip(spec, health, cond, vehicle_id=vid, start=pd.Timestamp("2026-03-02T08:00:00Z"),
                          drive=drive, duration_s=duration_s, fleet_rate_hz=rate_hz, logger=LOGGERS["bus"],
