@@ -112,12 +112,9 @@ def registry_vins(con: duckdb.DuckDBPyConnection) -> dict[str, str]:
     return dict(rows)
 
 
-def trip_owners(con: duckdb.DuckDBPyConnection, trip_ids: list[str]) -> dict[str, str]:
-    """trip_id -> source_file for those of the given trips already stored."""
-    if not trip_ids:
-        return {}
-    rows = con.execute("SELECT trip_id, source_file FROM trips WHERE list_contains(?, trip_id)", [trip_ids]).fetchall()
-    return dict(rows)
+def trip_owners(con: duckdb.DuckDBPyConnection) -> dict[str, str]:
+    """trip_id -> source_file of every stored trip (one query per run, not per file)."""
+    return dict(con.execute("SELECT trip_id, source_file FROM trips").fetchall())
 
 
 def commit_chunk(con, trips: list[dict], files: list[dict], rejects: list[dict], vins: dict[str, str],

@@ -247,7 +247,7 @@ def _sample_table(kept, ident, trip_index, ids, us, values, switches, dtc) -> pa
         "time": pa.array(us, pa.timestamp("us", tz="UTC")),
     }
     for sig in NUMERIC_SIGNALS:
-        cols[sig] = pa.array(values[sig][kept], pa.float64(), from_pandas=True) if sig in values else pa.nulls(n, pa.float64())
+        cols[sig] = pa.array(values[sig][kept], pa.float64()) if sig in values else pa.nulls(n, pa.float64())
     for sig in SWITCH_SIGNALS:
         if sig in switches:
             on, missing = switches[sig]
@@ -266,7 +266,8 @@ def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dic
     quality = trip_quality(us, {s: v for s, v in values.items() if s != "odometer"}, masks)
     odo = values.get("odometer")
     known = odo[np.isfinite(odo)] if odo is not None else np.array([])
-    signals = [s for s in present if samples.column(s).null_count < samples.num_rows]
+    signals = [s for s in present if not (np.isnan(values[s]).all() if s in values else samples.column(s).null_count
+                                          == samples.num_rows)]
     info = {
         "trip_id": tid,
         "vehicle_id": vehicle,

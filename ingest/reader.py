@@ -199,8 +199,16 @@ def parse_rows(log: LogText, numeric: list[int], text: list[int]) -> ParsedRows:
         table, lines, rejects = _with_bad_lines(log, lines, wanted, numeric)
     if table.num_rows != len(lines):
         raise FileUnusable(f"line accounting failed ({table.num_rows} rows parsed from {len(lines)} lines)")
-    columns = {i: table.column(f"c{i}").combine_chunks() for i in wanted}
+    columns = {i: _nullify(table.column(f"c{i}").combine_chunks()) for i in wanted}
     return ParsedRows(columns, lines, rejects)
+
+
+def _nullify(col: pa.Array) -> pa.Array:
+    """Text cells that are blank or a missing-value token become null (numbers are parsed so already)."""
+    if not pa.types.is_string(col.type):
+        return col
+    missing = pc.is_in(pc.utf8_trim_whitespace(col), pa.array(NULL_TOKENS))
+    return pc.if_else(missing, pa.scalar(None, pa.string()), col)
 
 
 def _with_bad_lines(log: LogText, lines: np.ndarray, wanted: list[int], numeric: list[int]):
@@ -271,8 +279,7 @@ def _read(body: bytes, log: LogText, wanted: list[int], types: dict, decimal_poi
         parse_options=pacsv.ParseOptions(delimiter=log.delimiter,
                                          invalid_row_handler=on_invalid if skipped is not None else None),
         convert_options=pacsv.ConvertOptions(include_columns=[f"c{i}" for i in wanted], column_types=types,
-                                             null_values=NULL_TOKENS, strings_can_be_null=True,
-                                             quoted_strings_can_be_null=True, decimal_point=decimal_point),
+                                             null_values=NULL_TOKENS, decimal_point=decimal_point),
     )
 
 

@@ -12,7 +12,9 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import logging
-from collections import Counter, defaultdict
+from collections import Counter, defaultdict, deque
+from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -33,6 +35,9 @@ log = logging.getLogger(__name__)
 SUFFIXES = (".csv", ".txt")
 #: Rows held in memory before a chunk is written and committed.
 CHUNK_ROWS = 2_000_000
+#: Threads parsing files while the main thread stages and commits (pyarrow and
+#: numpy release the GIL, so this uses both cores of a small machine).
+WORKERS = 2
 _SHOWN = 15
 
 
@@ -143,6 +148,26 @@ def _import_registry(con, df: pd.DataFrame, result: RegistryResult) -> None:
         raise
 
 
+@dataclass(frozen=True)
+class _Loaded:
+    sha: str | None
+    result: LogResult | None  # None when the file needs no parsing (unchanged or duplicate)
+    error: str | None
+
+
+def _in_order(pool: ThreadPoolExecutor, fn, items: list, window: int) -> Iterator[tuple]:
+    """(item, fn(item)) in input order, with at most ``window`` items in flight (bounded memory)."""
+    pending: deque = deque()
+    for item in items:
+        pending.append((item, pool.submit(fn, item)))
+        if len(pending) >= window:
+            head, future = pending.popleft()
+            yield head, future.result()
+    while pending:
+        head, future = pending.popleft()
+        yield head, future.result()
+
+
 class _Run:
     """One run's pending chunk and the catalog state it checks against."""
 
@@ -150,6 +175,7 @@ class _Run:
         self.con, self.store, self.profile, self.gap_s, self.summary = con, store, profile, gap_s, summary
         self.by_path, self.by_hash = catalog.file_states(con)
         self.registry_vins = catalog.registry_vins(con)
+        self.trip_owner = catalog.trip_owners(con)  # trip_id -> source file, stored and staged
         self._reset()
 
     def _reset(self) -> None:
@@ -160,40 +186,53 @@ class _Run:
         self.vins: dict[str, str] = {}
         self.replaced: list[str] = []
         self.pending_rows = 0
-        self.pending_trips: dict[str, str] = {}
         self.pending_hashes: dict[str, str] = {}
 
     def ingest(self, files: list[Path], progress: bool) -> None:
         file_bar = tqdm(total=len(files), unit="file", desc="files", disable=not progress)
         row_bar = tqdm(unit="row", desc="rows", disable=not progress, unit_scale=True)
-        with file_bar, row_bar:
-            for path in files:
-                n = self._one(path)
+        with file_bar, row_bar, ThreadPoolExecutor(max_workers=WORKERS) as pool:
+            for path, loaded in _in_order(pool, self._load, files, window=2 * WORKERS):
+                n = self._one(path, loaded)
                 file_bar.update(1)
                 row_bar.update(n)
                 if self.pending_rows >= CHUNK_ROWS:
-                    self._flush()
-            self._flush()
+                    self._flush(pool)
+            self._flush(pool)
 
-    def _one(self, path: Path) -> int:
-        key = str(path)
+    def _load(self, path: Path) -> _Loaded:
+        """Read, hash and (unless already stored) parse one file; runs in a worker thread."""
         try:
             raw = path.read_bytes()
         except OSError as exc:
-            self._record(key, None, "rejected", f"cannot be read: {exc}", LogResult())
-            return 0
+            return _Loaded(None, None, f"cannot be read: {exc}")
         sha = hashlib.sha256(raw).hexdigest()
+        prev = self.by_path.get(str(path))
+        stored = self.by_hash.get(sha)
+        if (prev is not None and prev[0] == sha) or (stored is not None and stored != str(path)):
+            return _Loaded(sha, None, None)  # unchanged or a duplicate: no need to parse
+        return _Loaded(sha, read_log(raw, path.name, path.parent.name, self.profile, self.gap_s,
+                                     self.registry_vins), None)
+
+    def _one(self, path: Path, loaded: _Loaded) -> int:
+        key, sha = str(path), loaded.sha
+        if loaded.error is not None:
+            self.summary.rejected_files.append((key, loaded.error))
+            self._record(key, None, "rejected", loaded.error, LogResult())
+            return 0
         prev = self.by_path.get(key)
         if prev is not None and prev[0] == sha:
             self.summary.unchanged += 1
             return 0
+        replacing = prev is not None and prev[1] in ("ingested", "replaced")
         same = self.pending_hashes.get(sha) or self.by_hash.get(sha)
         if same is not None and same != key:
+            if replacing:  # this path's earlier version's trips go; the content is stored under `same`
+                self.replaced.append(key)
             self.summary.duplicates.append((key, f"same content as {same}"))
             self._record(key, sha, "duplicate", f"same content as {same}", LogResult())
             return 0
-        result = read_log(raw, path.name, path.parent.name, self.profile, self.gap_s, self.registry_vins)
-        replacing = prev is not None and prev[1] in ("ingested", "replaced")
+        result = loaded.result
         if replacing:
             self.replaced.append(key)
         if result.unusable:
@@ -217,11 +256,9 @@ class _Run:
 
     def _drop_stored_trips(self, key: str, result: LogResult) -> None:
         """A trip (same vehicle and start) already stored from another file is rejected, not doubled."""
-        owners = catalog.trip_owners(self.con, [t.trip_id for t in result.trips])
-        owners.update({t.trip_id: self.pending_trips[t.trip_id] for t in result.trips if t.trip_id in self.pending_trips})
         keep = []
         for trip in result.trips:
-            owner = owners.get(trip.trip_id)
+            owner = self.trip_owner.get(trip.trip_id)
             if owner is None or owner == key:
                 keep.append(trip)
                 continue
@@ -237,7 +274,7 @@ class _Run:
             month = info["start_time"].strftime("%Y-%m")
             self.parts[(vehicle_bucket(trip.vehicle_id), month)].append((info, trip.samples))
             self.trips.append(info)
-            self.pending_trips[trip.trip_id] = key
+            self.trip_owner[trip.trip_id] = key
             self.pending_rows += trip.samples.num_rows
         self.vins.update(result.vins)
 
@@ -249,14 +286,17 @@ class _Run:
         })
         self.rejects += [{"source_file": key, "row": line, "reason": why} for line, why in result.rejects]
 
-    def _flush(self) -> None:
+    def _flush(self, pool: ThreadPoolExecutor) -> None:
         if not self.files:
             return
+        jobs = []
         for (bucket, month), items in self.parts.items():
             path = part_path(self.store.samples_dir, bucket, month)
-            write_part(path, [samples for _, samples in items])
+            jobs.append(pool.submit(write_part, path, [samples for _, samples in items]))
             for info, _ in items:
                 info["sample_file"] = catalog.relative(self.store, path)
+        for job in jobs:  # every part is on disk before the commit that refers to it
+            job.result()
         catalog.commit_chunk(self.con, self.trips, self.files, self.rejects, self.vins, self.replaced)
         log.debug("committed %d file(s), %d trip(s)", len(self.files), len(self.trips))
         self.by_path, self.by_hash = catalog.file_states(self.con)

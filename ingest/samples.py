@@ -9,6 +9,9 @@ sorted by trip_id then time. Part files are immutable; ``trips.sample_file``
 says which part holds a trip's rows, so rows of a replaced trip left in an
 older part are never read. Unreferenced parts are removed by
 ``catalog.collect_garbage``.
+
+A missing numeric cell is NaN, a signal the log lacks is an all-null column;
+a missing switch or DTC cell is null.
 """
 
 from __future__ import annotations

@@ -224,3 +224,21 @@ def test_a_kill_mid_run_then_a_rerun_gives_the_same_store_as_an_uninterrupted_ru
     _assert_same(_snapshot(reference), _snapshot(store))
     referenced = {store.root / f for f in store.read_table("trips").sample_file}
     assert set(store.samples_dir.rglob("*.parquet")) == referenced  # orphans of the kills are collected
+
+
+def test_command_line_prints_the_summary_and_returns_the_documented_exit_codes(tmp_path, capsys):
+    from tracktrue.cli import main
+
+    store = str(tmp_path / "store")
+    assert main(["ingest", str(FIXTURES / "bad_rows.csv"), "--store", store]) == 1
+    out = capsys.readouterr().out
+    assert "1 ingested" in out and "row(s) rejected" in out
+    assert main(["ingest", str(_fleet(tmp_path / "logs", n_files=1)), "--store", store]) == 0
+    assert main(["ingest", str(tmp_path / "missing"), "--store", store]) == 2
+    assert "no such file" in capsys.readouterr().err
+
+
+def test_progress_bars_run_when_asked(tmp_path, capsys):
+    summary = run_ingest([_fleet(tmp_path / "logs", n_files=2)], Store.open(tmp_path / "store"), progress=True)
+    assert summary.trips == 2
+    assert "file" in capsys.readouterr().err
