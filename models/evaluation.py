@@ -98,7 +98,7 @@ def read_truth(path: Path) -> pd.DataFrame:
     if missing:
         raise UserError(f"{path}: missing column(s) {', '.join(missing)} (need {', '.join(TRUTH_COLUMNS)})")
     for col in ("onset_date", "lamp_date"):
-        parsed = pd.to_datetime(df[col].str.strip().replace("", None), errors="coerce")
+        parsed = pd.to_datetime(df[col].str.strip().replace("", None), format="%Y-%m-%d", errors="coerce")
         bad = parsed.isna() & (df[col].str.strip() != "")
         if bad.any():
             row = int(np.flatnonzero(bad.to_numpy())[0]) + 2  # header is line 1

@@ -51,8 +51,8 @@ def feature_kind(name: str) -> str:
 
     ``wheel_signal`` (jitter, dropouts, other per-wheel agreement: sensor or
     tone ring), ``wheel_ratio`` (rolling radius or tooth count), then the
-    non-wheel sources. Features that compare a sensor with the wheels
-    (``yaw_offset_dps``, ``yaw_gain``, ``steer_center_deg``,
+    non-wheel sources. Features that compare a sensor's level with the wheels
+    (``yaw_offset_dps``, ``steer_center_deg``,
     ``lat_residual_g``, ``accel_long_residual_g``) are ``*_vs_wheels`` kinds,
     because a wheel fault shows in them too (Isermann's residual table).
     """
@@ -63,7 +63,7 @@ def feature_kind(name: str) -> str:
     table = {
         "yaw_rest_dps": "yaw",
         "yaw_offset_dps": "yaw_vs_wheels",
-        "yaw_gain": "yaw_vs_wheels",
+        "yaw_gain": "yaw",  # a slope: a wheel-radius offset moves the intercept, not the gain
         "steer_center_deg": "steering_vs_wheels",
         "steer_yaw_residual_dps": "steering_vs_yaw",
         "accel_long_rest_g": "accel_long",

@@ -11,21 +11,25 @@ ten by at most one order statistic.
 
 Drift: one statistic per evidence key of models.attribution (4 wheel signal,
 4 wheel ratio, and the yaw / steering / accelerometer residual groups: at most
-16, not one per feature), each the mean of its features' z-scores on a trip,
-referred to the vehicle's *own* baseline (median of its first
-``baseline_trips`` trips since the last service event) and divided by the
-fleet's pooled within-vehicle spread. That makes the CUSUM a detector of
-*change* — a healthy vehicle's persistent small offset is the peer forest's
-business, not an ever-growing CUSUM. Values are winsorised at ±``drift_clip``
-(a Huber-type robust CUSUM): one trip cannot cross ``h`` alone
-(``drift_clip − k < h``), and the heavy right tail of jitter and dropouts on
-healthy wheels (a rough road, one lost pulse) needs several trips in a row. ``h`` comes from
-the false-alarm budget (models.drift).
+16, not one per feature), each the mean of its features' z-scores on a trip
+(wheel-signal keys minus the median of the four wheels, so a rough road that
+shakes every wheel cancels), referred to the vehicle's *own* baseline (a
+lagged expanding median since the last service event, models.service) and
+divided by the peer group's pooled within-vehicle spread (floored at
+``within_floor`` peer spreads, inflated for lag-1 autocorrelation). That makes
+the CUSUM a detector of *change*; a persistent offset against the peers is
+the peer comparison's business. Values are winsorised at ±``drift_clip`` (a
+Huber-type robust CUSUM): one trip cannot cross ``h`` alone (``drift_clip − k
+< h``). ``h`` comes from the false-alarm budget (models.drift).
 
-A trip *alerts* when any drift statistic is above h or the vehicle's rolling
-score exceeds the fleet's inspect threshold (median + ``inspect_score_z`` ×
-scaled MAD of vehicle scores). ``flagged_since`` is the date of the first trip
-of the current run of alerting trips.
+A trip *alerts* when a drift statistic is above h, when the rolling median of
+an evidence key's peer z is beyond ``inspect_evidence_z`` (a fault present
+before the baseline was taken), or when the rolling vehicle score exceeds
+median + ``inspect_score_z`` scaled MADs of the fleet's vehicle scores; an
+alert is held for ``alert_hold_trips`` trips. A *sensor* alert leaves out
+ratio-only evidence (a tyre) and versus-wheels residuals while a wheel ratio
+is off. ``inspect`` needs a sensor alert on a sensor component;
+``flagged_since`` is the date of the first trip of the current run of alerts.
 """
 
 from __future__ import annotations
@@ -65,12 +69,13 @@ class FleetScorer:
         random_state: int = 0,
         vehicle_trips: int = 10,
         min_trips: int = 3,
-        baseline_trips: int = 30,
-        min_baseline_trips: int = 8,
+        baseline_trips: int = 10,
+        min_baseline_trips: int = 6,
         cusum_k: float = 0.75,
         drift_clip: float = 3.0,
         forest_clip: float = 30.0,
-        baseline_lag_trips: int = 30,
+        baseline_lag_trips: int = 15,
+        within_floor: float = 0.25,
         budget_vehicle_days: float = 1500.0,
         trips_per_day: float | None = None,
         alert_hold_trips: int = 5,
@@ -99,6 +104,7 @@ class FleetScorer:
         self.drift_clip = drift_clip
         self.forest_clip = forest_clip
         self.baseline_lag_trips = baseline_lag_trips
+        self.within_floor = within_floor
         self.budget_vehicle_days = budget_vehicle_days
         self.trips_per_day = trips_per_day
         self.alert_hold_trips = alert_hold_trips
@@ -143,13 +149,19 @@ class FleetScorer:
         per_vehicle = spread.groupby([df["peer_group"].to_numpy(), df["vehicle_id"].to_numpy()]).median() * MAD_TO_SIGMA
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            fleet_sigma = per_vehicle.median().fillna(1.0).clip(lower=0.05)
+            fleet_sigma = per_vehicle.median().fillna(1.0).clip(lower=self.within_floor)
             by_group = per_vehicle.groupby(level=0).median()
-        by_group = by_group.fillna(fleet_sigma).clip(lower=0.05)
+        by_group = by_group.fillna(fleet_sigma).clip(lower=self.within_floor)
         # a within-vehicle spread pooled over fewer than three vehicles is too noisy: use the fleet's
         small = per_vehicle.groupby(level=0).size() < 3
         by_group.loc[small[small].index] = fleet_sigma.to_numpy()
-        self.within_sigma_ = by_group
+        # trips of one vehicle are not independent (weather, routes, temperature drift of
+        # offsets): scale by the long-run factor √((1+ρ)/(1−ρ)) of an AR(1) sequence, ρ the
+        # pooled lag-1 autocorrelation of each statistic's in-control deviations
+        self.autocorrelation_ = self._lag1(stats[self.statistics_].sub(base).mask(in_base), df["vehicle_id"])
+        inflate = np.sqrt((1 + self.autocorrelation_) / (1 - self.autocorrelation_))
+        self.within_sigma_ = by_group * inflate
+        fleet_sigma = fleet_sigma * inflate
         self.fleet_within_sigma_ = fleet_sigma
         days = (df.groupby("vehicle_id")["start_time"].agg(lambda s: s.dt.floor("D").nunique()))
         n = df.groupby("vehicle_id").size()
@@ -166,6 +178,21 @@ class FleetScorer:
         return self
 
     # ------------------------------------------------------------- helpers
+    @staticmethod
+    def _lag1(dev: pd.DataFrame, vehicle: pd.Series) -> pd.Series:
+        """Median over vehicles of each statistic's lag-1 autocorrelation, clipped to [0, 0.8]."""
+        prev = dev.groupby(vehicle.to_numpy()).shift(1)
+        both = dev.notna() & prev.notna()
+        a, b = dev.where(both), prev.where(both)
+        g = vehicle.to_numpy()
+        ca = a - a.groupby(g).transform("mean")
+        cb = b - b.groupby(g).transform("mean")
+        num = (ca * cb).groupby(g).sum(min_count=5)
+        den = np.sqrt((ca ** 2).groupby(g).sum(min_count=5) * (cb ** 2).groupby(g).sum(min_count=5))
+        with np.errstate(all="ignore"):
+            rho = (num / den).median()
+        return rho.fillna(0.0).clip(0.0, 0.8)
+
     def _design(self, df: pd.DataFrame, z: pd.DataFrame | None = None) -> pd.DataFrame:
         """Forest input: peer z-scores, or raw features for the un-normalised baseline."""
         if not self.normalise_features:
@@ -198,7 +225,7 @@ class FleetScorer:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
                 out[key] = np.nanmean(z[cols].to_numpy(dtype=float), axis=1)
-        return pd.DataFrame(out, index=z.index)
+        return _remove_common_mode(pd.DataFrame(out, index=z.index))
 
     def _drift_statistics(self, df: pd.DataFrame) -> pd.DataFrame:
         """Drift inputs per trip, in a unit common to the peer group (not leave-one-out:
@@ -358,13 +385,14 @@ class FleetScorer:
         strength = per_trip.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
         rows = []
         for vid in vscore.index:
+            # evidence per key: the peer comparison or the vehicle's own change, whichever is stronger
+            # (drift strength cusum/h = 1 counts as attribution_z)
             ev = self._evidence(zmed.loc[vid])
+            for st in self.statistics_:
+                ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
             component, key = choose_component(ev, self.signal_z, self.attribution_z)
             alert = bool(last.at[vid, "alert"])
             sensor_alert = bool(last.at[vid, "sensor_alert"])
-            if alert and component == "none":
-                drift_ev = {s: strength.at[vid, f"strength__{s}"] * self.attribution_z for s in self.statistics_}
-                component, key = choose_component(drift_ev, self.signal_z, self.attribution_z)
             lamp_on = bool(lamp_last.at[vid, "lamp_on"]) if vid in lamp_last.index else False
             lamp_event = bool(lamp_last.at[vid, "lamp_event"]) if vid in lamp_last.index else False
             score_z = (vscore[vid] - self.score_center_) / self.score_scale_
@@ -419,9 +447,10 @@ class FleetScorer:
             if v is None or np.isnan(v):
                 continue
             key = evidence_key(f)
-            strength = max(v, 0.0) if key.startswith("wheel_signal_") else abs(v)
-            ev[key] = max(ev.get(key, 0.0), strength)
-        return ev
+            ev[key] = max(ev.get(key, np.nan), v) if key.startswith("wheel_signal_") else max(ev.get(key, 0.0), abs(v))
+        common = _remove_common_mode(pd.DataFrame([ev]))
+        return {k: (max(float(v), 0.0) if k.startswith("wheel_signal_") else float(v))
+                for k, v in common.iloc[0].items() if np.isfinite(v)}
 
     def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last) -> str:
         parts = []
@@ -465,6 +494,20 @@ def _fmt(x) -> str:
 
 def _unit(unit: str) -> str:
     return "" if not unit else (" %" if unit == "%" else f" {unit}")
+
+
+def _remove_common_mode(keys: pd.DataFrame) -> pd.DataFrame:
+    """Wheel-signal keys minus the median of the four wheels' (a rough road shakes every
+    wheel; a damaged tone ring one). The median of four is unmoved by one faulty wheel."""
+    cols = [c for c in keys.columns if c.startswith("wheel_signal_")]
+    if len(cols) < 3:
+        return keys
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        common = np.nanmedian(keys[cols].to_numpy(dtype=float), axis=1)
+    out = keys.copy()
+    out[cols] = keys[cols].to_numpy(dtype=float) - common[:, None]
+    return out
 
 
 def _alarm_kind(statistic: str) -> str:
