@@ -12,6 +12,7 @@ import numpy as np
 
 from features.row import FeatureRow
 from features.signals import (
+    SMOOTH_S,
     TripArrays,
     moving_mean,
     seconds,
@@ -35,7 +36,6 @@ WHEEL_ACCEL_MIN_S = 30.0
 #: Lateral intercept is fitted where |v·r| is below this.
 LAT_LOW_MPS2 = 1.5
 LAT_MIN_S = 30.0
-SMOOTH_S = 1.0
 
 
 def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
@@ -115,10 +115,14 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
         return x - moving_mean(x, width)
 
     wheels = calibrated_or_raw(trip, ref)
-    sources = [highpassed(smooth_derivative(wheels[i], trip)) for i in range(4)]
-    sources.append(highpassed(trip.signals["accel_long"]))
-    pair_var = {(i, j): float(np.nanvar(sources[i] - sources[j]))
-                for i in range(5) for j in range(i + 1, 5)}
+    sources = np.vstack([*(highpassed(smooth_derivative(wheels[i], trip)) for i in range(4)),
+                         highpassed(trip.signals["accel_long"])])
+    sources = sources[:, np.isfinite(sources).all(axis=0)]
+    if sources.shape[1] < 2:
+        row.nan_all(names, "too_little_rolling")
+        return
+    cov = np.cov(sources)  # var(x_i − x_j) = C_ii + C_jj − 2·C_ij, all ten pairs at once
+    pair_var = {(i, j): cov[i, i] + cov[j, j] - 2.0 * cov[i, j] for i in range(5) for j in range(i + 1, 5)}
     own_var = three_cornered_hat(pair_var, 5)
     for name, var in zip(names, own_var[:4]):
         row.set(name, np.sqrt(var) / G0_MPS2)
@@ -139,9 +143,8 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     if reason:
         row.nan(name, reason)
         return
-    width = window_samples(SMOOTH_S, trip.rate_hz)
-    ay = moving_mean(trip.signals["accel_lat"], width)
-    vr = moving_mean(ref.speed * ref.yaw_rate, width)
+    ay = trip.smoothed("accel_lat")
+    vr = moving_mean(ref.speed * ref.yaw_rate, window_samples(SMOOTH_S, trip.rate_hz))
     with np.errstate(invalid="ignore"):
         usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_LOW_MPS2)
                   & np.isfinite(ay) & np.isfinite(vr))

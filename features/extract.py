@@ -119,10 +119,10 @@ def _lamps(samples: pd.DataFrame) -> dict[str, object]:
     """Whether each lamp was lit at any sample, and the distinct trouble codes ("" when none)."""
     out: dict[str, object] = {}
     for name in ("lamp_abs", "lamp_esc"):
-        lit = samples[name] if name in samples.columns else pd.Series(dtype="boolean")
-        out[f"{name}_on"] = bool(lit.astype("boolean").fillna(False).any())
-    codes = samples["dtc"].dropna().astype(str) if "dtc" in samples.columns else pd.Series(dtype=str)
-    out["dtc"] = ",".join(sorted(c for c in codes.unique() if c.strip()))
+        lit = samples[name].to_numpy(dtype=bool, na_value=False) if name in samples.columns else np.zeros(0, bool)
+        out[f"{name}_on"] = bool(lit.any())
+    codes = pd.unique(samples["dtc"].dropna()) if "dtc" in samples.columns else []
+    out["dtc"] = ",".join(sorted(str(c) for c in codes if str(c).strip()))
     return out
 
 

@@ -22,6 +22,9 @@ from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
 #: A step longer than this many nominal sample periods is a gap: integration
 #: does not bridge it and derivatives are not taken across it.
 GAP_PERIODS = 2.5
+#: Comparisons of yaw, steering and lateral acceleration run on 1 s means, so
+#: one sample's noise is not taken for a turn.
+SMOOTH_S = 1.0
 
 
 @dataclass(frozen=True)
@@ -37,6 +40,13 @@ class TripArrays:
     gap_after: np.ndarray  #: True where the step to the next sample is a gap
     resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
     logged: frozenset[str] = frozenset()  #: signals with at least one sample present
+    _smoothed: dict = field(default_factory=dict, repr=False, compare=False)
+
+    def smoothed(self, name: str) -> np.ndarray:
+        """A signal's centred 1 s moving mean (computed once per trip: several features compare on it)."""
+        if name not in self._smoothed:
+            self._smoothed[name] = moving_mean(self.signal(name), window_samples(SMOOTH_S, self.rate_hz))
+        return self._smoothed[name]
 
     @property
     def n(self) -> int:

@@ -23,6 +23,7 @@ from features.signals import (
     median_of_three,
     moving_mean,
     robust_spread,
+    SMOOTH_S,
     seconds,
     three_cornered_hat,
     window_samples,
@@ -56,7 +57,6 @@ GLITCH_FRAC = 0.1
 #: breaks the agreement, a healthy turn does not.
 AXLE_AGREE_RADPS = 1.0 * DEG_RAD
 AXLE_AGREE_FRAC = 0.1
-AXLE_SMOOTH_S = 1.0
 
 
 @dataclass(frozen=True)
@@ -69,29 +69,43 @@ class WheelReference:
     calibrated_wheels: np.ndarray  #: (4, n) wheel speeds divided by their relative radius
     axles_agree: np.ndarray  #: front- and rear-axle yaw agree (one wheel's glitch breaks it)
     consensus_yaw_rate: np.ndarray  #: 1 s median of yaw sensor, rear axle, front axle, rad/s
+    yaw_rate_smoothed: np.ndarray  #: 1 s mean of ``yaw_rate``
     reason: str | None  #: why there is no calibration
 
 
 def rolling_everywhere(trip: TripArrays) -> np.ndarray:
-    """No wheel is reading (near) zero: samples usable for wheel-to-wheel comparison."""
+    """No wheel reads (near) zero within 1 s: samples usable for wheel-to-wheel comparison.
+
+    The margin keeps a dropout's edges, where a smoothed derivative or
+    moving mean still sees the zero, out of the comparisons as well.
+    """
     with np.errstate(invalid="ignore"):
-        return np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
+        any_zero = ~np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
+    if not any_zero.any():
+        return ~any_zero
+    return ~(moving_mean(any_zero.astype(float), window_samples(2 * SMOOTH_S, trip.rate_hz)) > 0)
 
 
-def distance_ratios(speeds: np.ndarray) -> np.ndarray:
-    """Each wheel's distance over the mean wheel's distance: Σ v_pos / Σ mean(v), for (4, n) speeds.
+def distance_ratios(speeds: np.ndarray, against: str = "mean") -> np.ndarray:
+    """Each wheel's distance over the reference wheel's: Σ v_pos / Σ ref(v), for (4, n) speeds.
 
-    A mean, not a median: a wheel-speed sensor counts teeth, so tooth-spacing
-    errors of a damaged ring cancel over each revolution and the distance
-    stays right, while the median of its lopsided once-per-revolution error
-    is not zero. Samples where any wheel strays more than 10 % from the
+    ``against`` "mean" is DESIGN.md's v_pos/mean(v) (the ratio features);
+    "median" (the median of four per sample) is the calibration's reference,
+    which keeps the true ground-speed scale when one wheel is off (a compact
+    spare reads ~3 % fast and would pull the mean, and with it every
+    calibrated speed and the wheel yaw, by ~0.8 %).
+    A sum, not a median over time: a wheel-speed sensor counts teeth, so
+    tooth-spacing errors of a damaged ring cancel over each revolution and the
+    distance stays right, while the median of its lopsided once-per-revolution
+    error is not zero. Samples where any wheel strays more than 10 % from the
     median of four (spin, lock, a glitch) are left out for all wheels alike.
     """
-    reference = median_of_four(speeds)
+    median = median_of_four(speeds)
     with np.errstate(invalid="ignore", divide="ignore"):
-        sane = np.all(np.abs(speeds / reference - 1.0) < GLITCH_FRAC, axis=0)
+        sane = np.all(np.abs(speeds / median - 1.0) < GLITCH_FRAC, axis=0)
     kept = speeds[:, sane]
-    return kept.sum(axis=1) / kept.mean(axis=0).sum()
+    reference = kept.mean(axis=0) if against == "mean" else median[sane]
+    return kept.sum(axis=1) / reference.sum()
 
 
 def wheel_comparison_window(row: FeatureRow, names, trip: TripArrays, windows: Windows,
@@ -115,29 +129,30 @@ def steady_reference_window(trip: TripArrays, windows: Windows, ref: WheelRefere
 
 
 def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelReference:
-    """Relative radius c_pos = distance ratio over straight cruise − 1, and the references built on it."""
+    """Relative radius c_pos = distance ratio to the median wheel over straight cruise − 1, and the references built on it."""
     nan = np.full(trip.n, np.nan)
     if seconds(windows.cruise, trip) < CALIBRATION_MIN_S:
         reason = windows.straight_reason or "no_straight_cruise"
-        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, reason)
-    offset = distance_ratios(trip.wheels[:, windows.cruise]) - 1.0
+        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, nan,
+                              reason)
+    offset = distance_ratios(trip.wheels[:, windows.cruise], against="median") - 1.0
     calibrated = trip.wheels / (1.0 + offset)[:, None]
     rl, rr = calibrated[2], calibrated[3]
     reason = spec.missing("track_rear_m", "track_front_m")
     if reason:
-        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, reason)
-    width = window_samples(AXLE_SMOOTH_S, trip.rate_hz)
+        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, nan, reason)
+    width = window_samples(SMOOTH_S, trip.rate_hz)
     rear = moving_mean(rear_axle_yaw_rate(rl, rr, spec.track_rear_m), width)
     front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
     with np.errstate(invalid="ignore"):
         agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
     if trip.has("yaw_rate"):
-        sensor = moving_mean(trip.signals["yaw_rate"], width)
+        sensor = trip.smoothed("yaw_rate")
         consensus = np.where(np.isfinite(sensor), median_of_three(sensor, rear, front), 0.5 * (rear + front))
     else:
         consensus = 0.5 * (rear + front)
     return WheelReference(offset, 0.5 * (rl + rr), rear_axle_yaw_rate(rl, rr, spec.track_rear_m),
-                          calibrated, agree, consensus, None)
+                          calibrated, agree, consensus, rear, None)
 
 
 def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
@@ -186,7 +201,8 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
     For each pair of wheels, hp(v_i / v_j − 1) is the difference of their
     fast noises (hp: minus a 2 s centred moving mean, which removes turns and
     tyre radius and keeps the wobble a damaged tone ring or loose sensor
-    makes); its robust variance (1.4826·MAD)² estimates σ_i² + σ_j². The six
+    makes; computed on log speeds, which is the same to first order); its
+    robust variance (1.4826·MAD)² estimates σ_i² + σ_j². The six
     pairs are solved for the four σ² by least squares: the "three-cornered
     hat" of clock comparison (Gray & Allan, 1974), so one jittery wheel does
     not raise its neighbours' values. Source: wheel speeds only. NaN below
@@ -198,12 +214,11 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         return
     typical_speed = float(np.median(windows.speed[usable]))
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
-    w = np.where(usable, trip.wheels, np.nan)
-    pair_var = {}
-    for i, j in WHEEL_PAIRS:
-        with np.errstate(invalid="ignore", divide="ignore"):
-            rel = w[i] / w[j] - 1.0
-        pair_var[(i, j)] = robust_spread((rel - moving_mean(rel, width))[usable]) ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_speed = np.log(np.where(usable, trip.wheels, np.nan))
+    # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
+    fast = np.vstack([x - moving_mean(x, width) for x in log_speed])[:, usable]
+    pair_var = {(i, j): robust_spread(fast[i] - fast[j]) ** 2 for i, j in WHEEL_PAIRS}
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
         step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)

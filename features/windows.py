@@ -22,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from features.signals import (
+    SMOOTH_S,
     TripArrays,
     keep_runs,
     median_of_four,
@@ -49,8 +50,6 @@ STRAIGHT_YAW_RADPS = 1.5 * DEG_RAD
 #: Small longitudinal acceleration (wheel-derived) for cruise and calibration.
 CALM_ACCEL_MPS2 = 0.5
 CRUISE_MIN_S = 3.0
-#: Votes are smoothed over this long (a single sample's noise is not a turn).
-VOTE_SMOOTH_S = 1.0
 
 
 @dataclass(frozen=True)
@@ -100,7 +99,7 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
     w = trip.wheels[logged]
     with np.errstate(invalid="ignore"):
         still = np.all(np.isfinite(w) & (w < STANDSTILL_SPEED_MPS), axis=0)
-    width = window_samples(VOTE_SMOOTH_S, trip.rate_hz, minimum=3)
+    width = window_samples(SMOOTH_S, trip.rate_hz, minimum=3)
     confirmations = 0
     for name, limit in (("yaw_rate", STANDSTILL_YAW_STD_RADPS), ("accel_long", STANDSTILL_ACCEL_STD_MPS2)):
         if trip.has(name):
@@ -117,14 +116,14 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
 
 def _straight_votes(trip, spec, speed, calm) -> tuple[dict[str, np.ndarray], str | None]:
     """Each source's opinion that the vehicle goes straight, as an equivalent yaw rate test."""
-    width = window_samples(VOTE_SMOOTH_S, trip.rate_hz, minimum=1)
+    width = window_samples(SMOOTH_S, trip.rate_hz)
     with np.errstate(invalid="ignore"):
         fast = calm & (speed >= CRUISE_SPEED_MPS)
     if not fast.any():
         return {}, None  # no cruise at all: the windows are empty, not unjudgeable
     equivalent: dict[str, np.ndarray] = {}
     if trip.has("yaw_rate"):
-        equivalent["yaw"] = (moving_mean(trip.signals["yaw_rate"], width), 1.0)
+        equivalent["yaw"] = (trip.smoothed("yaw_rate"), 1.0)
     rl, rr = trip.wheel("rl"), trip.wheel("rr")
     if np.isfinite(spec.track_rear_m) and np.isfinite(rl).any() and np.isfinite(rr).any():
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -133,7 +132,7 @@ def _straight_votes(trip, spec, speed, calm) -> tuple[dict[str, np.ndarray], str
         equivalent["wheels"] = (moving_mean(relative, width), speed / spec.track_rear_m)
     if trip.has("steering_angle") and spec.missing("steering_ratio", "wheelbase_m") is None:
         scale = speed / (spec.steering_ratio * spec.wheelbase_m)
-        equivalent["steering"] = (moving_mean(trip.signals["steering_angle"], width), scale)
+        equivalent["steering"] = (trip.smoothed("steering_angle"), scale)
     votes = {}
     for name, (value, scale) in equivalent.items():
         ref = value[fast & np.isfinite(value)]

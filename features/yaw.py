@@ -12,7 +12,15 @@ import numpy as np
 
 from features.kinematics import single_track_yaw_rate
 from features.row import FeatureRow
-from features.signals import TripArrays, deming_fit, moving_mean, seconds, white_noise_variance, window_samples
+from features.signals import (
+    SMOOTH_S,
+    TripArrays,
+    deming_fit,
+    moving_mean,
+    seconds,
+    white_noise_variance,
+    window_samples,
+)
 from features.spec import VehicleSpec
 from features.wheels import RATIO_MIN_SPEED_MPS, WheelReference, steady_reference_window
 from features.windows import Windows
@@ -30,7 +38,6 @@ STEER_CENTER_MIN_S = 10.0
 #: Turning (per the model) needed for a steering-gain residual.
 STEER_TURN_MIN_RADPS = 3.0 * DEG_RAD
 STEER_TURN_MIN_S = 10.0
-SMOOTH_S = 1.0
 
 
 def _to_deg(x: float) -> float:
@@ -83,9 +90,8 @@ def yaw_regression_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec
     if reason:
         row.nan_all(names, reason)
         return
-    width = window_samples(SMOOTH_S, trip.rate_hz)
-    yaw = moving_mean(trip.signals["yaw_rate"], width)
-    wheel = moving_mean(ref.yaw_rate, width)
+    yaw = trip.smoothed("yaw_rate")
+    wheel = ref.yaw_rate_smoothed
     with np.errstate(invalid="ignore"):
         usable = (steady_reference_window(trip, windows, ref) & (np.abs(wheel * ref.speed) < YAW_FIT_MAX_LAT_MPS2)
                   & np.isfinite(yaw) & np.isfinite(wheel))
@@ -155,9 +161,9 @@ def steer_yaw_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleS
     width = window_samples(SMOOTH_S, trip.rate_hz)
     centre = steer_center_rad if np.isfinite(steer_center_rad) else 0.0
     model = moving_mean(model_yaw_rate(trip, spec, windows.speed, centre), width)
-    yaw = moving_mean(trip.signals["yaw_rate"], width)
+    yaw = trip.smoothed("yaw_rate")
     if ref.reason is None:
-        judge = np.where(ref.axles_agree, moving_mean(ref.yaw_rate, width), np.nan)
+        judge = np.where(ref.axles_agree, ref.yaw_rate_smoothed, np.nan)
     else:
         judge = model
     usable = _turning(trip, windows, judge, windows.speed) & np.isfinite(yaw) & np.isfinite(model)
@@ -178,9 +184,8 @@ def steering_fit_sums(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> 
     keys = ("steerfit_rr", "steerfit_rrv2", "steerfit_rrv4", "steerfit_rvs", "steerfit_rv3s", "steerfit_s")
     if not (trip.has("steering_angle") and trip.has("yaw_rate")):
         return dict.fromkeys(keys, np.nan)
-    width = window_samples(SMOOTH_S, trip.rate_hz)
-    r = moving_mean(trip.signals["yaw_rate"], width)
-    sw = moving_mean(trip.signals["steering_angle"], width)
+    r = trip.smoothed("yaw_rate")
+    sw = trip.smoothed("steering_angle")
     v = windows.speed
     usable = _turning(trip, windows, r, v) & (np.sign(r) == np.sign(sw)) & np.isfinite(sw)
     r, sw, v = r[usable], sw[usable], v[usable]

@@ -32,7 +32,7 @@ from features.row import parse_nan_reasons
 from tracktrue.schema import POSITIONS
 
 VEHICLE_SEEDS = (41, 42, 43)
-DURATION_S = 900.0
+DURATION_S = 1200.0
 ON = ("rough_road", "full_load", "temperature", "slope_parking")
 #: Healthy variety: each confounder alone and together; those that draw from
 #: the trip's random stream (temperature, slope parking) also change the route.
@@ -74,14 +74,19 @@ def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None
     """(features that must respond, features that may also move, (family, wheel) it is pinned to)."""
     kind, _, pos = case.rpartition("_")
     ratios = [per_wheel("ratio", p) for p in POSITIONS]
+    # Features that use the rear axle as their yaw reference see a rear wheel's
+    # fault too (Isermann's residual table): they may move, the wheel features pin it.
+    rear_referenced = ["yaw_offset_dps", "yaw_gain", "lat_residual_g"] if pos in ("rl", "rr") else []
     if kind == "tone_ring":
-        return [per_wheel("jitter", pos), per_wheel("accel", pos)], [], ("jitter", pos)
+        return [per_wheel("jitter", pos), per_wheel("accel", pos)], rear_referenced, ("jitter", pos)
     if kind == "air_gap":  # dropout edges are false accelerations of that wheel too
         return [per_wheel("dropouts", pos)], [per_wheel("accel", pos)], ("dropouts", pos)
     if kind in ("tyre_deflation", "tyre_mismatch", "spare"):
         return [per_wheel("ratio", pos)], ratios, ("ratio", pos)
-    if case == "tyre_change":  # new tyres on a random axle: only the ratio family may move
-        return [], ratios, None
+    if case == "tyre_change":
+        # new tyres on a random axle: the ratio family moves, and the wheel yaw
+        # reference's scale (calibrated to the median wheel) moves with two tyres
+        return [], [*ratios, "yaw_gain"], None
     yaw_sensor = ["yaw_rest_dps", "yaw_offset_dps", "yaw_gain", "steer_yaw_residual_dps"]
     return {
         "yaw_offset": (["yaw_rest_dps", "yaw_offset_dps"], yaw_sensor, None),
