@@ -131,10 +131,10 @@ def _roles(n: int, rng: np.random.Generator) -> list[str | None]:
     """One fault name (or None) per vehicle: every sensor-fault kind before any repeats."""
     n_faulty = int(round(FAULTY_SHARE * n))
     n_tyre = int(round(TYRE_DISTRACTOR_SHARE * n))
-    kinds = list(rng.permutation(SENSOR_FAULT_KINDS))
+    kinds = [str(k) for k in rng.permutation(SENSOR_FAULT_KINDS)]
     faults = [kinds[i % len(kinds)] for i in range(n_faulty)]
     faults += [TYRE_DISTRACTOR_KINDS[i % 2] for i in range(n_tyre)]
-    names = [f"{k}_{rng.choice(POSITIONS)}" if k in PER_WHEEL_KINDS else k for k in faults]
+    names = [f"{k}_{POSITIONS[rng.integers(4)]}" if k in PER_WHEEL_KINDS else k for k in faults]
     roles: list[str | None] = names + [None] * (n - len(names))
     return [roles[i] for i in rng.permutation(n)]
 

@@ -28,8 +28,8 @@ from tracktrue.units import DEG_RAD, G0_MPS2
 
 #: Healthy sensor imperfections (1-sigma unless said otherwise).
 WHEEL_RADIUS_SPREAD = 0.0025  # relative, per wheel
-WHEEL_NOISE_MPS = 0.012
-WHEEL_NOISE_FRAC = 0.0008
+WHEEL_NOISE_MPS = 0.006
+WHEEL_NOISE_FRAC = 0.0003
 YAW_NOISE_DPS = 0.07
 YAW_OFFSET_DPS = 0.12  # clipped at +-0.3
 YAW_GAIN_ERROR = 0.005

@@ -36,14 +36,18 @@ def _metrics_of(df: pd.DataFrame, spec: dict) -> dict:
     }
     ok = moving & r_wheels.notna() & df.yaw_rate.notna()
     out["yaw_gain"] = np.polyfit(r_wheels[ok], df.yaw_rate[ok], 1)[0]
-    middle = np.nanmedian(w, axis=1)  # robust to the one bad wheel
     for i, p in enumerate(POSITIONS):
-        others = np.nanmean(np.delete(w, i, axis=1), axis=1)
-        rel = (w[:, i] - middle) / np.maximum(middle, 1.0)
+        others = np.nanmedian(np.delete(w, i, axis=1), axis=1)  # median of three: robust to one bad wheel
+        rel = (w[:, i] - others) / np.maximum(others, 1.0)
         out[f"ratio_{p}_pct"] = 100 * np.nanmedian(rel[cruise])
         d = np.diff(rel[moving & (w[:, i] > 0)])
         out[f"jitter_{p}_pct"] = 100 * np.nanmedian(np.abs(d - np.nanmedian(d)))
         out[f"dropouts_{p}"] = int(np.sum((w[:, i] == 0) & (others > 3)))
+    for i, j in ((0, 1), (2, 3), (0, 2), (1, 3)):  # axle and side pairs: each sees only its two wheels
+        pair_mean = 0.5 * (w[:, i] + w[:, j])
+        rel = (w[:, i] - w[:, j]) / np.maximum(pair_mean, 1.0)
+        d = np.diff(rel[(pair_mean > 5) & (w[:, i] > 0) & (w[:, j] > 0)])
+        out[f"pair_jitter_{POSITIONS[i]}{POSITIONS[j]}_pct"] = 100 * np.nanmedian(np.abs(d - np.nanmedian(d)))
     return out
 
 
@@ -90,8 +94,11 @@ def test_damaged_tone_ring_raises_jitter_on_that_wheel_only(healthy):
     m = _faulty("tone_ring_rl")
     h = healthy["lwb_van"]
     assert m["jitter_rl_pct"] > 3 * h["jitter_rl_pct"]
-    for p in ("fl", "fr"):
-        assert m[f"jitter_{p}_pct"] < 1.5 * h[f"jitter_{p}_pct"] + 0.02
+    # the pairs with rl jitter; the pairs without it do not
+    for pair in ("rlrr", "flrl"):
+        assert m[f"pair_jitter_{pair}_pct"] > 3 * h[f"pair_jitter_{pair}_pct"]
+    for pair in ("flfr", "frrr"):
+        assert m[f"pair_jitter_{pair}_pct"] == pytest.approx(h[f"pair_jitter_{pair}_pct"], rel=1e-9)
 
 
 def test_air_gap_drops_out_at_low_speed_on_that_wheel_only(healthy):
@@ -140,3 +147,19 @@ def test_lamp_lights_only_over_the_threshold_and_never_for_tyres(fault):
 def test_confounders_never_light_a_lamp(confounder):
     df, _ = trip_samples("pickup", confounders=(confounder,), duration_s=200, seed=3)
     assert not df.lamp_abs.any() and not df.lamp_esc.any() and df.dtc.isna().all()
+
+
+def _touched(fault: str) -> set[str]:
+    name = fault.rsplit("_", 1)
+    if name[-1] in POSITIONS:
+        return {f"wheel_speed_{name[-1]}", "vehicle_speed"}  # the controller's speed uses every wheel
+    return {"yaw_offset": {"yaw_rate"}, "yaw_gain": {"yaw_rate"}, "steer_offset": {"steering_angle"},
+            "accel_long_offset": {"accel_long"}, "accel_lat_offset": {"accel_lat"}}[fault]
+
+
+@pytest.mark.parametrize("fault", FAULTS)
+def test_a_fault_changes_its_own_signals_and_nothing_else(fault):
+    healthy, _ = trip_samples("compact_van", duration_s=150, seed=9)
+    faulty, _ = trip_samples("compact_van", fault=fault, duration_s=150, seed=9)
+    changed = {c for c in healthy.columns if not healthy[c].equals(faulty[c])}
+    assert changed == _touched(fault)
