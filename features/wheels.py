@@ -29,7 +29,7 @@ from features.signals import (
     window_samples,
 )
 from features.spec import VehicleSpec
-from features.windows import Windows
+from features.windows import DROPOUT_ZERO_MPS, Windows
 from tracktrue.schema import POSITIONS
 from tracktrue.units import DEG_RAD
 
@@ -44,8 +44,7 @@ JITTER_MIN_RATE_HZ = 2.0
 #: Quantisation alone (step/√12 over speed) above this drowns the jitter a tone ring makes.
 JITTER_MAX_QUANT_PCT = 0.25
 JITTER_MIN_S = 30.0
-#: A wheel "reads zero" below this while the other three roll above ROLLING_MPS.
-DROPOUT_ZERO_MPS = 0.3
+#: A wheel "reads zero" below DROPOUT_ZERO_MPS (features.windows) while the other three roll above this.
 ROLLING_MPS = 2.0
 DROPOUT_MIN_KM = 1.0
 #: The six wheel pairs (indices into POSITIONS).
@@ -71,19 +70,6 @@ class WheelReference:
     consensus_yaw_rate: np.ndarray  #: 1 s median of yaw sensor, rear axle, front axle, rad/s
     yaw_rate_smoothed: np.ndarray  #: 1 s mean of ``yaw_rate``
     reason: str | None  #: why there is no calibration
-
-
-def rolling_everywhere(trip: TripArrays) -> np.ndarray:
-    """No wheel reads (near) zero within 1 s: samples usable for wheel-to-wheel comparison.
-
-    The margin keeps a dropout's edges, where a smoothed derivative or
-    moving mean still sees the zero, out of the comparisons as well.
-    """
-    with np.errstate(invalid="ignore"):
-        any_zero = ~np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
-    if not any_zero.any():
-        return ~any_zero
-    return ~(moving_mean(any_zero.astype(float), window_samples(2 * SMOOTH_S, trip.rate_hz)) > 0)
 
 
 def distance_ratios(speeds: np.ndarray, against: str = "mean") -> np.ndarray:
@@ -115,7 +101,7 @@ def wheel_comparison_window(row: FeatureRow, names, trip: TripArrays, windows: W
         row.nan_all(names, "rate_too_low")
         return None
     with np.errstate(invalid="ignore"):
-        usable = windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & rolling_everywhere(trip)
+        usable = windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & windows.rolling
     if seconds(usable, trip) < min_s:
         row.nan_all(names, "too_little_rolling")
         return None
@@ -125,7 +111,7 @@ def wheel_comparison_window(row: FeatureRow, names, trip: TripArrays, windows: W
 def steady_reference_window(trip: TripArrays, windows: Windows, ref: WheelReference) -> np.ndarray:
     """Calm rolling above 5 m/s where front- and rear-axle yaw agree: the calibrated wheels can serve as a reference."""
     with np.errstate(invalid="ignore"):
-        return windows.calm & rolling_everywhere(trip) & ref.axles_agree & (ref.speed >= RATIO_MIN_SPEED_MPS)
+        return windows.calm & windows.rolling & ref.axles_agree & (ref.speed >= RATIO_MIN_SPEED_MPS)
 
 
 def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelReference:
@@ -180,7 +166,7 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
         yaw, speed = ref.consensus_yaw_rate, windows.speed
         with np.errstate(invalid="ignore", divide="ignore"):
             curvature = yaw / speed
-            usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & rolling_everywhere(trip)
+            usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & windows.rolling
                       & (np.abs(yaw * speed) < RATIO_MAX_LAT_MPS2))
         factors = wheel_path_factors(curvature[usable], spec.track_front_m, spec.track_rear_m, spec.wheelbase_m)
         u = trip.wheels[:, usable] / factors

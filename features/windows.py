@@ -44,6 +44,8 @@ STANDSTILL_SETTLE_S = 1.0
 STANDSTILL_YAW_STD_RADPS = 0.6 * DEG_RAD
 STANDSTILL_ACCEL_STD_MPS2 = 0.6
 MOVING_SPEED_MPS = 3.0
+#: A wheel below this while others roll is read as zero (a dropout), not as slow.
+DROPOUT_ZERO_MPS = 0.3
 CRUISE_SPEED_MPS = 8.0
 #: Straight: every vote's equivalent yaw rate within this of its straight-road value.
 STRAIGHT_YAW_RADPS = 1.5 * DEG_RAD
@@ -61,6 +63,7 @@ class Windows:
     cruise: np.ndarray  #: straight cruise, by two-of-three vote
     straight_by_yaw_and_wheels: np.ndarray  #: cruise judged without the steering sensor
     calm: np.ndarray  #: moving without brake or hard longitudinal acceleration
+    rolling: np.ndarray  #: no wheel reads (near) zero within 1 s: wheels can be compared
     standstill_reason: str | None  #: why standstill cannot be judged, if so
     straight_reason: str | None  #: why straightness cannot be judged, if so
 
@@ -88,8 +91,21 @@ def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
     else:
         both = np.zeros(trip.n, dtype=bool)
     return Windows(speed=speed, accel=accel, moving=moving, standstill=standstill, cruise=cruise,
-                   straight_by_yaw_and_wheels=both, calm=calm,
+                   straight_by_yaw_and_wheels=both, calm=calm, rolling=_rolling_everywhere(trip),
                    standstill_reason=standstill_reason, straight_reason=straight_reason)
+
+
+def _rolling_everywhere(trip: TripArrays) -> np.ndarray:
+    """No wheel reads (near) zero within 1 s: samples usable for wheel-to-wheel comparison.
+
+    The margin keeps a dropout's edges, where a smoothed derivative or
+    moving mean still sees the zero, out of the comparisons as well.
+    """
+    with np.errstate(invalid="ignore"):
+        any_zero = ~np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
+    if not any_zero.any():
+        return ~any_zero
+    return ~(moving_mean(any_zero.astype(float), window_samples(2 * SMOOTH_S, trip.rate_hz)) > 0)
 
 
 def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str | None]:
