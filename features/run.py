@@ -61,7 +61,7 @@ class FeaturesSummary:
             lines.append(f"  {len(self.no_spec_vehicles)} vehicle(s) without registry spec: "
                          + ", ".join(sorted(self.no_spec_vehicles)[:10]))
         if self.nan_reasons:
-            lines.append("  NaN features (trips, this run):")
+            lines.append("  NaN feature values this run, by reason (trips × features):")
             by_reason = Counter()
             for (feature, reason), n in self.nan_reasons.items():
                 by_reason[reason] += n
