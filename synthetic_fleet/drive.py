@@ -11,6 +11,7 @@ lateral acceleration is capped well inside tyre friction (|a_y| <= 4 m/s²,
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -70,9 +71,14 @@ class DriveTrace:
     parked: np.ndarray  # parking standstill at trip start and end
 
 
+@functools.lru_cache(maxsize=None)
+def _fields(style: RoadStyle) -> dict[str, np.ndarray]:
+    return {f: np.asarray(getattr(style, f), dtype=float) for f in style.__dataclass_fields__}
+
+
 def _per_leg(styles: list[RoadStyle], counts: np.ndarray, name: str) -> np.ndarray:
     """A RoadStyle field repeated over each section's legs; ranges give shape (2, n_legs)."""
-    values = np.array([getattr(st, name) for st in styles], dtype=float)
+    values = np.array([_fields(st)[name] for st in styles])
     return np.repeat(values, counts, axis=0).T
 
 
