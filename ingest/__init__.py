@@ -13,8 +13,7 @@ Exit codes:
   0  every file was ingested (or was already), no row or column was rejected
   1  the run finished, but some input was rejected: a whole file (empty,
      binary, no time column, no wheel speed, relative time without a start),
-     a column (missing/unknown unit, voltage without calibration, second
-     column for a signal), a data row (not a number, outside the physical
+     a column (missing/unknown unit, voltage without calibration), a data row (not a number, outside the physical
      range, bad time, duplicate or backwards time, wrong field count, trip
      already stored from another file) or a registry row; see the summary and
      the published ``rejects`` and ``ingested_files`` tables
@@ -22,8 +21,13 @@ Exit codes:
      registry file that cannot be read or lacks a required column
   3  another ingest run holds the store's lock
 
-Vehicle identity, time bases and the profile format are documented in
-ingest/identity.py, ingest/timebase.py and ingest/profile.py.
+Unrecognised columns, a second column for a signal already read, and a VIN
+that fails its check digit are warnings in the summary; they do not change
+the exit code.
+
+Vehicle identity, time bases, the profile format and the store layout are
+documented in ingest/identity.py, ingest/timebase.py, ingest/profile.py and
+ingest/samples.py / ingest/catalog.py.
 """
 
 from ingest.run import IngestSummary, run_ingest
