@@ -95,3 +95,19 @@ def test_analog_accelerometer_voltages_round_trip_through_a_profile(tmp_path, st
         ok = np.isfinite(truth) & (np.abs(truth) < 2 * 9.80665)  # inside the converter's 0..5 V span
         err = np.abs(df[sig].to_numpy(dtype=float)[ok] - truth[ok])
         assert err.max() <= bound_mps2 * (1 + 1e-9), sig
+
+
+@pytest.mark.slow
+def test_a_generated_fleet_ingests_whole_and_joins_its_registry(tmp_path):
+    from ingest import run_ingest
+    from synthetic_fleet import generate_fleet
+    from tracktrue.store import Store
+
+    fleet = generate_fleet(tmp_path / "fleet", n_vehicles=3, days=1, seed=5)
+    store = Store.open(tmp_path / "store")
+    summary = run_ingest([fleet.out / "logs"], store, vehicles_csv=fleet.out / "vehicles.csv")
+    assert summary.rejected_files == [] and summary.column_errors == []
+    assert set(summary.reject_kinds) <= {"duplicate time"}  # the simulated logger repeats rows on purpose
+    trips, vehicles = store.read_table("trips"), store.read_table("vehicles")
+    assert set(trips.vehicle_id) <= set(vehicles.vehicle_id[vehicles.spec_source == "registry"])  # VINs joined
+    assert (trips.n_samples > 0).all() and trips.trip_id.is_unique
