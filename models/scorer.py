@@ -46,9 +46,14 @@ from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
 from models.service import FAMILIES, epoch_keys, service_table, statistic_family
 from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
-from tracktrue.schema import STATUSES
+from tracktrue.schema import POSITIONS, STATUSES
 
 log = logging.getLogger(__name__)
+
+#: A wheel-ratio change this large (in %) against the vehicle's own early trips is a
+#: tyre change worth locating (a 20–30 % pressure loss moves the ratio roughly
+#: 0.1–0.5 %: CHECKS.md, from memory).
+OWN_TYRE_CHANGE_PCT = 0.1
 
 SENSOR_COMPONENTS_PREFIX = ("wheel_sensor_", "yaw_sensor", "steering_angle_sensor", "accel_long_sensor", "accel_lat_sensor")
 
@@ -75,7 +80,7 @@ class FleetScorer:
         drift_clip: float = 3.0,
         forest_clip: float = 30.0,
         baseline_lag_trips: int = 15,
-        within_floor: float = 0.25,
+        within_floor: float = 0.5,
         budget_vehicle_days: float = 1500.0,
         trips_per_day: float | None = None,
         alert_hold_trips: int = 5,
@@ -391,6 +396,9 @@ class FleetScorer:
             for st in self.statistics_:
                 ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
             component, key = choose_component(ev, self.signal_z, self.attribution_z)
+            if component.startswith("tyre_"):
+                pos = self._tyre_position(cur[cur["vehicle_id"] == vid], recent[recent["vehicle_id"] == vid])
+                component, key = f"tyre_{pos}", f"wheel_ratio_{pos}"
             alert = bool(last.at[vid, "alert"])
             sensor_alert = bool(last.at[vid, "sensor_alert"])
             lamp_on = bool(lamp_last.at[vid, "lamp_on"]) if vid in lamp_last.index else False
@@ -438,6 +446,24 @@ class FleetScorer:
         out.insert(0, "rank", np.arange(1, len(out) + 1))
         out["as_of"] = as_of
         return out
+
+    def _tyre_position(self, history: pd.DataFrame, recent: pd.DataFrame) -> str:
+        """The wheel whose speed ratio moved most, in % (one unit for all four wheels).
+
+        Ratios are relative to the mean of the four wheels, so one tyre's change
+        of ε shows as about ¾ε on its wheel and −¼ε on each other: the largest
+        |change| is the tyre. z-scores would mislead here, because each wheel
+        position has its own peer spread. The change is against the vehicle's
+        own early trips, or against the peer median when its own history shows
+        none (a wrong tyre fitted before the data began).
+        """
+        cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
+        now = recent[cols].median().to_numpy(dtype=float)
+        early = history[cols].head(self.baseline_trips).median().to_numpy(dtype=float)
+        own = now - early
+        if not np.isfinite(own).any() or np.nanmax(np.abs(own)) < OWN_TYRE_CHANGE_PCT:
+            own = now - recent[[f"center__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
+        return POSITIONS[int(np.nanargmax(np.abs(np.nan_to_num(own, nan=0.0))))]
 
     def _evidence(self, zmed: pd.Series) -> dict[str, float]:
         """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""
