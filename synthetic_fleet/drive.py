@@ -43,11 +43,11 @@ class RoadStyle:
 
 
 ROAD_STYLES: dict[str, RoadStyle] = {
-    "town": RoadStyle((7.0, 14.0), (4.0, 30.0), 0.55, (3.0, 45.0), 0.55, 0.15, 0.3,
+    "town": RoadStyle((7.0, 14.0), (4.0, 30.0), 0.55, (3.0, 45.0), 0.55, 0.15, 0.5,
                       (0.5, 2.5), (0.8, 2.2), (0.8, 2.8)),
-    "suburban": RoadStyle((13.0, 22.0), (15.0, 90.0), 0.25, (3.0, 30.0), 0.4, 0.2, 0.5,
+    "suburban": RoadStyle((13.0, 22.0), (15.0, 90.0), 0.25, (3.0, 30.0), 0.4, 0.2, 0.7,
                           (0.5, 2.5), (0.7, 1.8), (0.7, 2.5)),
-    "highway": RoadStyle((23.0, 33.0), (60.0, 360.0), 0.0, (0.0, 0.0), 0.0, 0.0, 0.6,
+    "highway": RoadStyle((23.0, 33.0), (60.0, 360.0), 0.0, (0.0, 0.0), 0.0, 0.0, 0.7,
                          (0.3, 1.5), (0.4, 1.2), (0.4, 1.5)),
 }
 #: Share of a mixed trip per section, in driving order.
@@ -126,7 +126,7 @@ def _legs(styles: list[RoadStyle], budgets_s: np.ndarray, v0: float, rng: np.ran
     # Phase 3: accelerate; 4-6: cruise with an optional curve; 7: slow into the next entry.
     accel = between(param("accel_mps2"))
     cruise_s = between(param("cruise_s"))
-    curve_s = np.where(next(u) < param("curve_prob"), between((4.0, 20.0)), 0.0)
+    curve_s = np.where(next(u) < param("curve_prob"), between((6.0, 25.0)), 0.0)
     kappa_curve = sign() * between(param("curve_lat_accel_mps2")) / vc**2
     decel = np.where(next(u) < HARD_BRAKE_SHARE, between((3.5, 5.0)), between(param("decel_mps2")))
 
@@ -161,7 +161,7 @@ def _trip_phases(drive: str, duration_s: float, rng: np.random.Generator):
     if drive not in DRIVES:
         raise ValueError(f"unknown drive {drive!r}; known: {', '.join(DRIVES)}")
     sections = MIXED_SECTIONS if drive == "mixed" else ((drive, 1.0),)
-    start_hold, end_hold, crawl, park_r0, park_r1, exit_s, park_s, slow_a = rng.random(8)
+    start_hold, end_hold, crawl, park_r0, park_r1, exit_s, park_s, slow_a, brake_start, brake_end = rng.random(10)
     start_hold = 5.0 + 15.0 * start_hold
     end_hold = 10.0 + 20.0 * end_hold
     crawl = 1.2 + 0.8 * crawl
@@ -174,7 +174,8 @@ def _trip_phases(drive: str, duration_s: float, rng: np.random.Generator):
                           [max(v - crawl, 0.0) / (0.8 + 1.2 * slow_a), 5.0 + 5.0 * park_s, 1.5, end_hold]])
     spd = np.concatenate([[0.0, crawl], s, [crawl, crawl, 0.0, 0.0]])
     kap = np.concatenate([[0.0, 1.0 / park_r], k, [0.0, -1.0 / park_r, 0.0, 0.0]])
-    return dur, spd, kap, start_hold, end_hold
+    brake_s = (3.5 + 4.5 * brake_start, 3.5 + 4.5 * brake_end)
+    return dur, spd, kap, start_hold, end_hold, brake_s
 
 
 def _boxcar(x: np.ndarray, width_s: float, dt: float) -> np.ndarray:
@@ -233,7 +234,7 @@ def drive_trace(drive: str, duration_s: float, rate_hz: float, rng: np.random.Ge
     parking grades instead.
     """
     dt = 1.0 / rate_hz
-    dur, spd, kap, start_hold, end_hold = _trip_phases(drive, duration_s, rng)
+    dur, spd, kap, start_hold, end_hold, brake_s = _trip_phases(drive, duration_s, rng)
     ends = np.cumsum(dur)
     n = int(ends[-1] * rate_hz)
     t = np.arange(n) * dt
@@ -260,8 +261,9 @@ def drive_trace(drive: str, duration_s: float, rate_hz: float, rng: np.random.Ge
     grade = np.where(parked_start, park_grade_start, np.where(parked_end, park_grade_end, grade))
     bank = np.where(parked_start | parked_end, 0.0, bank)
     parked = parked_start | parked_end
-    # The driver holds the brake while decelerating and at stops; a parked
-    # vehicle stands on its parking brake a few seconds after stopping.
-    settled = (t < start_hold - 2.0) | (t >= ends[-1] - end_hold + 3.0)
+    # The driver holds the brake while decelerating and at stops; a parked vehicle
+    # stands on its parking brake, the pedal pressed only for the seconds of
+    # starting off (engine start, selecting a gear) and of coming to rest.
+    settled = (t < start_hold - brake_s[0]) | (t >= ends[-1] - end_hold + brake_s[1])
     brake = ((accel < -0.3) | (v == 0.0)) & ~settled
     return DriveTrace(t, v, accel, kappa, np.arctan(grade), np.arctan(bank), brake, parked)
