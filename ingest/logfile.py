@@ -21,6 +21,7 @@ from ingest.identity import resolve_identity
 from ingest.profile import Profile
 from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
 from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
+from ingest.signs import sign_warnings
 from ingest.timebase import parse_time
 from ingest.trips import trip_bounds, trip_quality
 from tracktrue.ids import trip_id
@@ -176,6 +177,7 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     result.reject_kinds.update(flags.kinds)
     if len(kept) == 0:
         return
+    result.warnings.extend(sign_warnings({s: v[kept] for s, v in values.items()}))
     codes, us = ident.codes[kept], tr.us[kept]
     bounds = trip_bounds(codes, us, gap_s)
     ids = [trip_id(ident.ids[codes[a]], pd.Timestamp(int(us[a]), unit="us", tz="UTC")) for a, _ in bounds]

@@ -40,10 +40,7 @@ def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np
     speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
     distance_km = float("nan")
     if speeds:
-        stack = np.vstack(speeds)
-        count = np.sum(np.isfinite(stack), axis=0)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            mean = np.where(count > 0, np.nansum(stack, axis=0) / np.maximum(count, 1), np.nan)
+        mean = mean_known(speeds)
         seg = 0.5 * (mean[1:] + mean[:-1]) * np.diff(t)
         distance_km = float(np.nansum(seg) / 1000.0)
     dt = np.diff(t)
@@ -53,6 +50,13 @@ def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np
     for sig in NUMERIC_SIGNALS:
         out[f"resolution_{sig}"] = _resolution(values[sig]) if sig in values else float("nan")
     return out
+
+
+def mean_known(signals: list[np.ndarray]) -> np.ndarray:
+    """Per-sample mean of the signals that are known there (NaN where none is)."""
+    stack = np.vstack(signals)
+    known = np.isfinite(stack).sum(axis=0)
+    return np.where(known > 0, np.nansum(stack, axis=0) / np.maximum(known, 1), np.nan)
 
 
 def _resolution(v: np.ndarray) -> float:

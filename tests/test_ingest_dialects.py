@@ -1,6 +1,8 @@
 """CSV dialects, time bases, identity, profiles and row validation, from small fixtures."""
 
 import math
+
+import numpy as np
 from pathlib import Path
 
 import pandas as pd
@@ -166,3 +168,24 @@ def test_bad_profiles_are_user_errors_naming_the_problem(tmp_path, text, word):
 def test_the_example_profile_is_valid():
     profile = load_profile(Path(__file__).parents[1] / "ingest" / "profile_example.toml")
     assert profile.columns["ain3"].v_per_g == 0.8
+
+
+def _turning_log(yaw_sign: float, ay_sign: float) -> bytes:
+    # Steady-state kinematics on a 1.5 m track at 10 m/s: r = (v_rr - v_rl) / track and a_y = v * r
+    # (rigid-body kinematics; CHECKS.md), left turns positive (ISO 8855).
+    t = np.arange(0, 60, 0.1)
+    r = 0.2 * np.sin(t / 5)  # rad/s, left and right turns
+    v_rl, v_rr = 10 - r * 0.75, 10 + r * 0.75
+    rows = [f"{pd.Timestamp('2026-03-02T07:00:00Z') + pd.Timedelta(seconds=float(s))},"
+            f"{a:.3f},{b:.3f},{yaw_sign * ri:.4f},{ay_sign * 10 * ri:.3f}" for s, a, b, ri in zip(t, v_rl, v_rr, r)]
+    return ("# vehicle: S\ntime,RL [m/s],RR [m/s],Yaw rate [rad/s],Lat accel [m/s^2]\n" + "\n".join(rows)).encode()
+
+
+def test_signs_that_contradict_the_wheels_are_warned_about_never_flipped():
+    assert not any("ISO 8855" in w for w in read_log(_turning_log(1, 1), "s.csv", "V", Profile(), 300).warnings)
+    flipped = read_log(_turning_log(-1, 1), "s.csv", "V", Profile(), 300)
+    assert any(w.startswith("yaw_rate correlates negatively") for w in flipped.warnings)
+    assert any(w.startswith("accel_lat correlates negatively") for w in flipped.warnings)
+    assert _frame(flipped).yaw_rate.iloc[10] < 0  # stored as logged
+    ay_only = read_log(_turning_log(1, -1), "s.csv", "V", Profile(), 300)
+    assert [w.split()[0] for w in ay_only.warnings] == ["accel_lat"]
