@@ -240,7 +240,8 @@ def _vehicle_trips(v: VehiclePlan, start: dt.date, days: int, seed: int) -> tupl
     rng = np.random.default_rng([seed, v.index, 1])
     idle_from = rng.uniform(0, days) if rng.random() < 0.3 else np.inf
     idle_until = idle_from + rng.uniform(3, 8)
-    yard_grade = v.depot.yard_grade * rng.choice([-1.0, 1.0])
+    habit = rng.choice([-1.0, 1.0])  # nose into the slope or out of it, most nights the same way
+    grade = v.depot.yard_grade * habit  # where the vehicle stands: the yard, or its last stop
     fault = parse_fault(v.fault.name) if v.fault else None
     trips: list[TripPlan] = []
     lamp_date = None
@@ -251,7 +252,7 @@ def _vehicle_trips(v: VehiclePlan, start: dt.date, days: int, seed: int) -> tupl
             continue
         n_trips = 1 + int(rng.choice(4, p=TRIPS_PER_DAY_P))
         clock_h = rng.uniform(6.0, 8.5)
-        grade = yard_grade
+        yard_grade = v.depot.yard_grade * habit * (1.0 if rng.random() < 0.7 else -1.0)  # parked tonight
         ambient_day = 5.0 + 12.0 * day / 90.0 + rng.normal(0.0, 3.0)
         for k in range(n_trips):
             minutes = float(np.clip(TRIP_MEDIAN_MIN * np.exp(TRIP_SIGMA * rng.standard_normal()), *TRIP_MIN_MAX_MIN))

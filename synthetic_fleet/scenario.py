@@ -24,7 +24,7 @@ class Depot:
 
 
 DEPOTS: tuple[Depot, ...] = (
-    Depot("HX", "Holloway Cross", "A", 0.25, 0.03, 0.07),
+    Depot("HX", "Holloway Cross", "A", 0.25, 0.03, 0.045),
     Depot("BM", "Brenmoor", "B", 0.25, 0.05, 0.0),
     Depot("SR", "Sallow Reach", "A", 0.35, 0.30, 0.02),
 )
