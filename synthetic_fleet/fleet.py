@@ -41,9 +41,10 @@ from tracktrue.schema import POSITIONS
 
 log = logging.getLogger(__name__)
 
-#: Demo fleet: every fault kind, lamps lighting for some, about 6 million samples at 10 Hz.
+#: Demo fleet: every fault kind, lamps lighting for some, about 5 million samples at 10 Hz
+#: (the whole demo chain must run in minutes on a 2-core machine).
 DEMO_VEHICLES = 24
-DEMO_DAYS = 28
+DEMO_DAYS = 24
 
 #: Shares of the fleet (DESIGN: ~30-40 % one sensor fault each, ~10 % tyre distractors).
 FAULTY_SHARE, TYRE_DISTRACTOR_SHARE = 0.35, 0.10
