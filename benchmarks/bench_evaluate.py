@@ -63,8 +63,9 @@ def evaluate_seed(out: Path, with_service: bool) -> tuple[dict, dict, dict]:
     from tracktrue.store import Store
 
     store = Store.open(out / "store")
-    if with_service:
-        store.publish_table("service_events", pd.read_csv(out / "service_history.csv", dtype=str))
+    events = pd.read_csv(out / "service_history.csv", dtype=str)
+    # "without" publishes the table empty (a store may still hold it from an earlier run)
+    store.publish_table("service_events", events if with_service else events.iloc[0:0])
     t = time.perf_counter()
     summary = models.run_scoring(store)
     t_score = time.perf_counter() - t
