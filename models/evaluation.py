@@ -24,7 +24,6 @@ vehicles without any truth row, per 30 healthy vehicle-days, in % of vehicles.
 from __future__ import annotations
 
 import datetime as dt
-import logging
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -37,10 +36,7 @@ from models.scorer import FleetScorer
 from tracktrue.errors import UserError
 from tracktrue.store import Store
 
-log = logging.getLogger(__name__)
-
 TRUTH_COLUMNS = ("vehicle_id", "fault", "component", "onset_date", "lamp_date")
-METHODS = ("tracktrue", "lamp_only", "single_feature", "raw_forest")
 ROLLING_TRIPS = 10
 
 

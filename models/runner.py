@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-import logging
 import platform as _platform
 import uuid
 from dataclasses import dataclass
@@ -29,8 +28,6 @@ from tracktrue.errors import UserError
 from tracktrue.schema import (PEER_BANDS_COLUMNS, TRIP_SCORES_COLUMNS, VEHICLE_DRIFT_COLUMNS,
                               VEHICLE_STATUS_COLUMNS)
 from tracktrue.store import Store
-
-log = logging.getLogger(__name__)
 
 MODEL_RUNS_COLUMNS = ("run_id", "created_at", "as_of", "params_json", "versions_json", "data_window",
                       "feature_list", "n_trips")
@@ -105,7 +102,10 @@ def score_fleet(store: Store, as_of: dt.date | None, scorer: FleetScorer | None 
 
 
 def run_scoring(store: Store, as_of: dt.date | None = None, progress: bool = False) -> ScoringSummary:
-    """Score trips and vehicles and publish models/' tables (see module doc)."""
+    """Score trips and vehicles and publish models/' tables (see module doc).
+
+    ``progress`` is accepted for the command line's sake; scoring a fleet's
+    trip_features takes seconds, so no bar is drawn."""
     with store.run_lock("score", "tracktrue score"):
         fleet = score_fleet(store, as_of)
         run_id = uuid.uuid4().hex[:12]
