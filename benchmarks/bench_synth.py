@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from synthetic_fleet import DEMO_DAYS, DEMO_VEHICLES, generate_fleet
-from synthetic_fleet.export import STYLES, write_trip_csv
+from synthetic_fleet.export import STYLES, write_trips_csv
 from synthetic_fleet.logger import LOGGERS
 from synthetic_fleet.platforms import platform
 from synthetic_fleet.sensors import SensorHealth, TripCondition
@@ -45,21 +45,34 @@ def _cpu_s() -> float:
     return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
 
 
+def _best_cpu_s(work, repeats: int = 3) -> float:
+    """The least CPU time of a few runs (other work on the machine only ever adds)."""
+    best = float("inf")
+    for _ in range(repeats):
+        t0 = _cpu_s()
+        work()
+        best = min(best, _cpu_s() - t0)
+    return best
+
+
 def bench_parts(n_trips: int = 40, duration_s: float = 600.0) -> None:
     """Per part, in samples per CPU second (wall time on a shared machine says little)."""
     t0 = _cpu_s()
     trips = _trips(n_trips, duration_s)
     sim_s = _cpu_s() - t0
     n = sum(t.n_samples for t in trips)
+    kwargs = dict(vehicle_id="BENCH-1", vin="TV9LWB4R2NB007001", starts_ms=[t.start.value // 1_000_000 for t in trips],
+                  lengths=[t.n_samples for t in trips], time_ms=np.concatenate([t.time_ms for t in trips]),
+                  columns={k: np.concatenate([t.columns[k] for t in trips]) for k in trips[0].columns},
+                  polled=False, analog=False)
     with tempfile.TemporaryDirectory() as tmp:
         for style in STYLES.values():
-            t0 = _cpu_s()
-            size = sum(write_trip_csv(Path(tmp) / f"{style.name}_{i}.csv", style, vehicle_id="BENCH-1",
-                                      vin="TV9LWB4R2NB007001", start_ms=t.start.value // 1_000_000,
-                                      time_ms=t.time_ms, columns=t.columns, polled=False, analog=False)
-                       for i, t in enumerate(trips))
-            write_s = _cpu_s() - t0
-            print(f"write style {style.name}: {n / write_s:12,.0f} samples per CPU-s ({size / write_s / 1e6:.0f} MB)")
+            paths = [Path(tmp) / f"{style.name}_{i}.csv" for i in range(n_trips)]
+            write_trips_csv(paths[:1], style, **{**kwargs, "starts_ms": kwargs["starts_ms"][:1],
+                                                  "lengths": [n]})  # look-up tables built once per process
+            write_s = _best_cpu_s(lambda: write_trips_csv(paths, style, **kwargs))
+            size = sum(p.stat().st_size for p in paths)
+            print(f"write style {style.name}: {n / write_s:12,.0f} samples per CPU-s ({size / write_s / 1e6:.0f} MB/s)")
         # Reference: pandas DataFrame.to_csv of the same canonical rows (style A-like, no unit conversion).
         frames = [t.to_frame() for t in trips[:10]]
         t0 = _cpu_s()

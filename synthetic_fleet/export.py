@@ -7,20 +7,20 @@ a relative time in seconds, mph, °/s, °, m/s². Both are generic CSV of our ow
 design. Values are rounded to each signal's logged resolution
 (``ExportStyle.resolution_si``), coarser on a polled logger.
 
-Formatting goes through Arrow's C++ CSV writer (number → text without a
-per-row Python step); DataFrame.to_csv is several times slower here.
+Formatting is array arithmetic: each cell is looked up or spelled out as NUL-padded
+bytes, a row is its cells side by side, and dropping the NULs closes them up
+(no per-row Python step; DataFrame.to_csv and Arrow's CSV writer are several times slower).
 """
 
 from __future__ import annotations
 
 import functools
+import itertools
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import pyarrow as pa
-import pyarrow.compute as pc
-import pyarrow.csv as pacsv
 
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS, MPH_MPS
 
@@ -97,62 +97,9 @@ STYLES: dict[str, ExportStyle] = {
 
 #: Numbers within this many resolution steps of zero are formatted by table look-up.
 _TABLE_STEPS = 30_000
-
-
-def _fixed_text(steps: np.ndarray, decimals: int, point: str, valid: np.ndarray | None = None) -> pa.Array:
-    """Text of integer multiples of 10**-decimals with fixed decimals ("-12.30"); invalid → empty cell."""
-    whole, frac = np.divmod(np.abs(steps).astype(np.int64), 10**decimals)
-    sign = pa.DictionaryArray.from_arrays(pa.array((steps < 0).astype(np.int8)), pa.array(["", "-"]))
-    parts = [sign.cast(pa.string()), pc.cast(pa.array(whole, mask=None if valid is None else ~valid), pa.string())]
-    if decimals:
-        parts += [pa.array(np.full(len(steps), point)), _fraction_digits(decimals).take(pa.array(frac))]
-    return pc.binary_join_element_wise(*parts, "")
-
-
-@functools.lru_cache(maxsize=None)
-def _fraction_digits(decimals: int) -> pa.Array:
-    return pa.array([f"{i:0{decimals}d}" for i in range(10**decimals)])
-
-
-@functools.lru_cache(maxsize=None)
-def _number_table(decimals: int, point: str) -> pa.Array:
-    """Text of every multiple of 10**-decimals in ±_TABLE_STEPS."""
-    return _fixed_text(np.arange(-_TABLE_STEPS, _TABLE_STEPS + 1), decimals, point)
-
-
-def _numbers(values: np.ndarray, decimals: np.ndarray, decimal_comma: bool) -> list[pa.Array]:
-    """Rows of ``values`` (k, n) as text with ``decimals[i]`` fixed decimals; NaN becomes an empty cell.
-
-    Formatting each float costs ~100 ns here; a look-up in a table of the
-    logged resolution's steps costs a quarter of that, and the arithmetic is
-    done for all columns in one pass.
-    """
-    finite = np.isfinite(values)
-    steps = np.rint(np.where(finite, values, 0.0) * 10.0 ** decimals[:, None])
-    inside = np.abs(steps).max(axis=1, initial=0.0) <= _TABLE_STEPS
-    index = (np.clip(steps, -_TABLE_STEPS, _TABLE_STEPS) + _TABLE_STEPS).astype(np.int32)
-    point = "," if decimal_comma else "."
-    out = []
-    for i, d in enumerate(decimals):
-        if inside[i]:
-            out.append(_number_table(int(d), point).take(pa.array(index[i], mask=~finite[i])))
-        else:  # a column reaching beyond the table: the same text, built for its own values
-            out.append(_fixed_text(steps[i], int(d), point, finite[i]))
-    return out
-
-
-def _relative_seconds(time_ms: np.ndarray, decimal_comma: bool) -> pa.Array:
-    """Seconds with three decimals from integer milliseconds."""
-    seconds, milli = np.divmod(time_ms, 1000)
-    whole = pc.cast(pa.array(seconds), pa.string())
-    return pc.binary_join_element_wise(whole, _fraction_digits(3).take(pa.array(milli)), "," if decimal_comma else ".")
-
-
-def _fixed_width_text(chars: np.ndarray) -> pa.Array:
-    """An Arrow string array over the rows of a (n, width) uint8 array, without copying per row."""
-    n, width = chars.shape
-    offsets = np.arange(n + 1, dtype=np.int32) * width
-    return pa.StringArray.from_buffers(n, pa.py_buffer(offsets), pa.py_buffer(np.ascontiguousarray(chars)))
+#: Rows formatted at a time: one batch's bytes stay in the processor's cache.
+_BATCH_ROWS = 8192
+_NUL = b"\0"
 
 
 def _digits(values: np.ndarray, width: int) -> np.ndarray:
@@ -161,41 +108,135 @@ def _digits(values: np.ndarray, width: int) -> np.ndarray:
     return (48 + (values[:, None] // powers) % 10).astype(np.uint8)
 
 
-def _clock_table() -> np.ndarray:
-    """"HH:MM:SS." for every second of a day, shape (86400, 9)."""
-    s = np.arange(86400)
-    colon = np.full((86400, 1), ord(":"), np.uint8)
-    return np.hstack([_digits(s // 3600, 2), colon, _digits(s // 60 % 60, 2), colon, _digits(s % 60, 2),
-                      np.full((86400, 1), ord("."), np.uint8)])
+def _fixed_chars(steps: np.ndarray, decimals: int, point: str, valid: np.ndarray | None = None) -> np.ndarray:
+    """Text of integer multiples of 10**-decimals with fixed decimals ("-12.30") as ASCII codes, shape (n, width).
+
+    Cells are NUL-padded where a shorter number needs fewer characters (no sign,
+    fewer whole digits); the writer drops every NUL, so a row's cells close up.
+    An invalid value becomes an all-NUL (empty) cell.
+    """
+    magnitude = np.abs(steps).astype(np.int64)
+    whole, frac = np.divmod(magnitude, 10**decimals)
+    width = len(str(int(whole.max(initial=0))))
+    digits = _digits(whole, width)
+    digits[:, :-1][whole[:, None] < 10 ** np.arange(width - 1, 0, -1)] = 0  # leading zeros
+    parts = [np.where(steps < 0, ord("-"), 0).astype(np.uint8)[:, None], digits]
+    if decimals:
+        parts += [np.full((len(steps), 1), ord(point), np.uint8), _digits(frac, decimals)]
+    chars = np.hstack(parts)
+    if valid is not None:
+        chars[~valid] = 0
+    return chars
 
 
-_CLOCK = _clock_table()
+def _words(texts: list[bytes]) -> np.ndarray:
+    """Texts as rows of NUL-padded 8-byte words, shape (len(texts), words per text)."""
+    width = -(-max(len(t) for t in texts) // 8) * 8
+    return np.frombuffer(b"".join(t.ljust(width, _NUL) for t in texts), np.uint64).reshape(len(texts), -1)
 
 
-def iso_utc_ms(epoch_ms: np.ndarray) -> pa.Array:
-    """ISO-8601 UTC timestamps with milliseconds and Z (2026-03-02T07:14:00.123Z)."""
+@functools.lru_cache(maxsize=None)
+def _number_words(decimals: int, point: str, sep: bytes) -> np.ndarray:
+    """Every multiple of 10**-decimals in ±_TABLE_STEPS and then ``sep`` as one 8-byte NUL-padded word;
+    the last entry is the empty cell (``sep`` alone)."""
+    chars = _fixed_chars(np.arange(-_TABLE_STEPS, _TABLE_STEPS + 1), decimals, point)
+    cells = np.zeros((len(chars) + 1, 8), np.uint8)
+    cells[:-1, :chars.shape[1]] = chars
+    cells[:-1, chars.shape[1]:chars.shape[1] + len(sep)] = np.frombuffer(sep, np.uint8)
+    cells[-1, :len(sep)] = np.frombuffer(sep, np.uint8)
+    assert chars.shape[1] + len(sep) <= 8, "a table cell must fit one word"
+    return cells.view(np.uint64)[:, 0]
+
+
+def _number_cells(values: np.ndarray, units_per_step: float, decimals: int, point: str, sep: bytes) -> np.ndarray:
+    """Cells of ``values`` (SI) in steps of ``units_per_step`` with ``decimals``, each followed by ``sep``;
+    NaN → an empty cell. Words (n,) from the table, or characters (n, width) beyond it.
+
+    Formatting each float costs ~100 ns in Python or Arrow; a look-up of the
+    step's text in a table costs a few, and a column reaching beyond the
+    table is spelled out digit by digit instead.
+    """
+    steps = np.rint(values / units_per_step)
+    if not (np.fmin.reduce(steps) < -_TABLE_STEPS or np.fmax.reduce(steps) > _TABLE_STEPS):
+        index = steps + _TABLE_STEPS
+        np.fmin(index, 2 * _TABLE_STEPS + 1, out=index)  # fmin of NaN and x is x: NaN → the empty cell
+        return _number_words(decimals, point, sep).take(index.astype(np.intp))
+    valid = np.isfinite(steps)
+    chars = _fixed_chars(np.where(valid, steps, 0.0), decimals, point, valid)
+    return np.hstack([chars, np.broadcast_to(np.frombuffer(sep, np.uint8), (len(chars), len(sep)))])
+
+
+def _choice_cells(choices: list[tuple[bytes, ...]], codes: list[np.ndarray], seps: list[bytes]) -> np.ndarray:
+    """Neighbouring cells with few possible texts (switches, one trouble code), looked up together:
+    column i shows ``choices[i][codes[i]]`` and then ``seps[i]``. Words (n, k)."""
+    table = _words([b"".join(t + s for t, s in zip(combo, seps)) for combo in itertools.product(*choices)])
+    code = np.zeros(len(codes[0]), np.intp)
+    for c, options in zip(codes, choices):
+        code = code * len(options) + c
+    return table[code]
+def _text_words(texts: list[str]) -> np.ndarray:
+    """One NUL-padded 8-byte word per text (each at most 8 ASCII characters)."""
+    return _words([t.encode("ascii") for t in texts])[:, 0]
+
+
+@functools.lru_cache(maxsize=None)
+def _clock_words() -> np.ndarray:
+    """"HH:MM:SS" for every second of a day."""
+    return _text_words([f"{s // 3600:02d}:{s // 60 % 60:02d}:{s % 60:02d}" for s in range(86400)])
+
+
+@functools.lru_cache(maxsize=None)
+def _milli_words(point: str, suffix: str, sep: bytes) -> np.ndarray:
+    """The millisecond part ".123" of a time, then ``suffix`` and ``sep``, for every millisecond."""
+    return _text_words([f"{point}{m:03d}{suffix}{sep.decode()}" for m in range(1000)])
+
+
+def _iso_utc_words(epoch_ms: np.ndarray, sep: bytes) -> np.ndarray:
+    """ISO-8601 UTC timestamps with milliseconds and Z (2026-03-02T07:14:00.123Z), then ``sep``; words (n, 4)."""
     day, rem = np.divmod(epoch_ms, 86_400_000)
     second, milli = np.divmod(rem, 1000)
     first = int(day.min())
-    days = np.arange(first, int(day.max()) + 1).astype("datetime64[D]")
-    date_text = np.char.add(np.datetime_as_string(days), "T").astype("S11")
-    out = np.empty((len(epoch_ms), 24), np.uint8)
-    out[:, :11] = np.frombuffer(date_text.tobytes(), np.uint8).reshape(-1, 11)[day - first]
-    out[:, 11:20] = _CLOCK[second]
-    out[:, 20:23] = _digits(milli, 3)
-    out[:, 23] = ord("Z")
-    return _fixed_width_text(out)
+    dates = np.datetime_as_string(np.arange(first, int(day.max()) + 1).astype("datetime64[D]"))
+    out = np.empty((len(epoch_ms), 4), np.uint64)
+    out[:, :2] = _words([f"{d}T".encode("ascii") for d in dates])[day - first]
+    out[:, 2] = _clock_words().take(second)
+    out[:, 3] = _milli_words(".", "Z", sep).take(milli)
+    return out
 
 
-def _constant_text(value: str | None, lit: np.ndarray) -> pa.Array:
-    """``value`` where ``lit``, an empty cell elsewhere (dictionary-encoded: one string, many rows)."""
-    indices = pa.array(np.zeros(len(lit), np.int8), mask=~lit)
-    return pa.DictionaryArray.from_arrays(indices, pa.array([value or ""]))
+def _seconds_cells(time_ms: np.ndarray, point: str, sep: bytes) -> np.ndarray:
+    """Seconds with three decimals from integer milliseconds (within a day: two table look-ups), then ``sep``."""
+    if time_ms.min(initial=0) < 0 or time_ms.max(initial=0) >= 86_400_000:
+        return np.hstack([_fixed_chars(time_ms, 3, point),
+                          np.broadcast_to(np.frombuffer(sep, np.uint8), (len(time_ms), len(sep)))])
+    seconds, milli = np.divmod(time_ms, 1000)
+    return np.stack([_whole_seconds_words().take(seconds), _milli_words(point, "", sep).take(milli)], axis=1)
 
 
-_SWITCH = pa.array(["0", "1"])
-#: Columns written as text rather than numbers (the switches are 0/1).
-_TEXT_SIGNALS = frozenset({"time", "vin", "dtc", "brake", "lamp_abs", "lamp_esc"})
+@functools.lru_cache(maxsize=None)
+def _whole_seconds_words() -> np.ndarray:
+    return _text_words([str(s) for s in range(86400)])
+
+
+def _cell_text(cells: np.ndarray) -> pa.Array:
+    """The text that cells (words (n,) or characters (n, width)) put in the file, an empty cell as null."""
+    chars = cells.view(np.uint8).reshape(len(cells), -1)
+    offsets = np.zeros(len(chars) + 1, np.int32)
+    np.cumsum(np.count_nonzero(chars, axis=1), out=offsets[1:])
+    valid = np.packbits(np.diff(offsets) > 0, bitorder="little")
+    return pa.StringArray.from_buffers(len(chars), pa.py_buffer(offsets),
+                                       pa.py_buffer(chars.tobytes().translate(None, _NUL)), pa.py_buffer(valid))
+
+
+def iso_utc_ms(epoch_ms: np.ndarray) -> pa.Array:
+    """ISO-8601 UTC timestamps with milliseconds and Z, as text."""
+    return _cell_text(_iso_utc_words(epoch_ms, b""))
+
+
+def _numbers(values: np.ndarray, decimals: np.ndarray, decimal_comma: bool) -> list[pa.Array]:
+    """Rows of ``values`` (k, n) as the text the writer prints with ``decimals[i]`` fixed decimals."""
+    point = "," if decimal_comma else "."
+    return [_cell_text(_number_cells(v, 10.0**-int(d), int(d), point, b"")) for v, d in zip(values, decimals)]
 
 
 def _analog_v(values_mps2: np.ndarray) -> np.ndarray:
@@ -203,64 +244,125 @@ def _analog_v(values_mps2: np.ndarray) -> np.ndarray:
     return np.clip(np.round(volts / ANALOG_STEP_V) * ANALOG_STEP_V, 0.0, 5.0)
 
 
-def _cells(style: ExportStyle, *, vin: str, start_ms: np.ndarray, time_ms: np.ndarray,
-           columns: dict[str, np.ndarray], polled: bool, analog: bool) -> pa.Table:
-    """The text of every cell, one column per export column; ``start_ms`` and ``time_ms`` per row."""
-    n = len(time_ms)
-    chosen = style.columns + (style.analog_columns if analog else ())
-    numeric = [c for c in chosen if c.signal not in _TEXT_SIGNALS]
-    values = np.empty((len(numeric), n))
-    for i, col in enumerate(numeric):
-        raw = columns[col.signal]
-        values[i] = _analog_v(raw) if col in style.analog_columns else raw / col.si_per_unit
-    decimals = np.array([c.polled_decimals if polled and c.polled_decimals is not None else c.decimals
-                         for c in numeric])
-    number_cells = dict(zip(numeric, _numbers(values, decimals, style.decimal_comma)))
-    cells: list[pa.Array] = []
-    for col in chosen:
-        if col in number_cells:
-            cells.append(number_cells[col])
-        elif col.signal == "time":
-            cells.append(_relative_seconds(time_ms, style.decimal_comma) if style.relative_time
-                         else iso_utc_ms(start_ms + time_ms))
+#: Cells with few possible texts: the 0/1 switches and the trouble code.
+_CHOICE_SIGNALS = frozenset({"dtc", "brake", "lamp_abs", "lamp_esc"})
+
+
+def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, start_ms: np.ndarray,
+                time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool) -> list[np.ndarray | bytes]:
+    """A row's text in file order, each cell with its delimiter (or the line end): words (n,) or (n, k)
+    of uint64, characters (n, width) of uint8, or bytes the same on every row."""
+    point = "," if style.decimal_comma else "."
+    seps = [style.delimiter.encode("ascii")] * (len(chosen) - 1) + [b"\n"]
+    pieces: list[np.ndarray | bytes] = []
+    k = 0
+    while k < len(chosen):
+        col, sep = chosen[k], seps[k]
+        if col.signal in _CHOICE_SIGNALS:
+            run = k
+            while run < len(chosen) and chosen[run].signal in _CHOICE_SIGNALS:
+                run += 1
+            choices, codes = [], []
+            for c in chosen[k:run]:
+                values = columns[c.signal]
+                if c.signal == "dtc":
+                    lit = values != None  # noqa: E711 (element-wise on an object array)
+                    choices.append((b"", str(values[lit][0]).encode("ascii") if lit.any() else b""))
+                    codes.append(lit.astype(np.intp))
+                else:
+                    choices.append((b"0", b"1"))
+                    codes.append(values.astype(np.intp))
+            pieces.append(_choice_cells(choices, codes, seps[k:run]))
+            k = run
+            continue
+        if col.signal == "time":
+            pieces.append(_seconds_cells(time_ms, point, sep) if style.relative_time
+                          else _iso_utc_words(start_ms + time_ms, sep))
         elif col.signal == "vin":
-            cells.append(_constant_text(vin, np.ones(n, dtype=bool)))
-        elif col.signal == "dtc":
-            codes = columns["dtc"]
-            lit = codes != None  # noqa: E711 (element-wise on an object array)
-            cells.append(_constant_text(codes[lit][0] if lit.any() else None, lit))
+            pieces.append(vin.encode("ascii") + sep)
         else:
-            cells.append(_SWITCH.take(pa.array(columns[col.signal].astype(np.int8))))
-    return pa.Table.from_arrays(cells, names=[c.header for c in chosen])
+            decimals = col.polled_decimals if polled and col.polled_decimals is not None else col.decimals
+            if col in style.analog_columns:
+                pieces.append(_number_cells(_analog_v(columns[col.signal]), 10.0**-decimals, decimals, point, sep))
+            else:
+                pieces.append(_number_cells(columns[col.signal], 10.0**-decimals * col.si_per_unit, decimals,
+                                            point, sep))
+        k += 1
+    return pieces
+
+
+def _rows(pieces: list[np.ndarray | bytes], n: int) -> np.ndarray:
+    """The pieces side by side as words, shape (n, words per row); a row's text is its bytes without NULs.
+
+    Neighbouring characters and constants are joined into one block first, so
+    only each block's end is padded to a whole word.
+    """
+    blocks: list[np.ndarray] = []
+    chars: list[np.ndarray | bytes] = []
+    for p in pieces + [np.empty((n, 0), np.uint64)]:
+        if isinstance(p, np.ndarray) and p.dtype == np.uint64:
+            if all(isinstance(c, bytes) for c in chars) and chars:  # the same words on every row
+                blocks.append(_words([b"".join(chars)]))
+            elif chars:
+                chars = [c if isinstance(c, np.ndarray) else np.broadcast_to(np.frombuffer(c, np.uint8), (n, len(c)))
+                         for c in chars]
+                width = sum(c.shape[1] for c in chars)
+                block = np.zeros((n, -(-width // 8) * 8), np.uint8)
+                block[:, :width] = np.hstack(chars)
+                blocks.append(block.view(np.uint64))
+            chars = []
+            blocks.append(p.reshape(n, -1))
+        else:
+            chars.append(p)
+    rows = np.empty((n, sum(b.shape[1] for b in blocks)), np.uint64)
+    at = 0
+    for b in blocks:
+        rows[:, at:at + b.shape[1]] = b
+        at += b.shape[1]
+    return rows
+
+
+def _metadata(style: ExportStyle, chosen: tuple[Column, ...], vehicle_id: str, start_ms: int, n: int) -> bytes:
+    lines = []
+    if style.metadata:
+        start = np.datetime_as_string(np.datetime64(int(start_ms), "ms"), unit="s", timezone="UTC")
+        lines += [f"# vehicle: {vehicle_id}", f"# start: {start}", f"# rows: {n}"]
+    lines.append(style.delimiter.join(c.header for c in chosen))
+    return ("\n".join(lines) + "\n").encode("utf-8")
 
 
 def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, vin: str, starts_ms: list[int],
-                    times_ms: list[np.ndarray], columns: list[dict[str, np.ndarray]], polled: bool,
+                    lengths: list[int], time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool,
                     analog: bool) -> list[int]:
     """Write several trips of one vehicle, one file each; returns the bytes written per file.
 
-    The cells of all the trips are formatted in one pass (a trip's fixed cost
-    of some hundred array calls is paid once per vehicle), then each file
-    gets its slice of the rows. ``columns`` are canonical SI, one dict per trip.
+    ``time_ms`` (from each trip's start) and the canonical SI ``columns`` hold
+    the trips' rows one after the other, ``lengths`` rows each. Rows are
+    formatted in fixed batches that may span trips, so a short trip costs no
+    extra array calls; each file gets its slices of the batches' records.
     """
-    lengths = np.array([len(t) for t in times_ms])
-    merged = {k: np.concatenate([c[k] for c in columns]) for k in columns[0]}
-    table = _cells(style, vin=vin, start_ms=np.repeat(np.asarray(starts_ms, dtype=np.int64), lengths),
-                   time_ms=np.concatenate(times_ms), columns=merged, polled=polled, analog=analog)
-    options = pacsv.WriteOptions(include_header=False, delimiter=style.delimiter, quoting_style="none",
-                                 batch_size=8192)
-    header = style.delimiter.join(table.column_names)
+    chosen = style.columns + (style.analog_columns if analog else ())
+    ends = np.cumsum(lengths)
+    row_start_ms = np.repeat(np.asarray(starts_ms, dtype=np.int64), lengths)
+
+    @functools.lru_cache(maxsize=1)
+    def batch(k: int) -> np.ndarray:
+        rows = slice(k * _BATCH_ROWS, min((k + 1) * _BATCH_ROWS, int(ends[-1])))
+        pieces = _row_pieces(style, chosen, vin=vin, start_ms=row_start_ms[rows], time_ms=time_ms[rows],
+                             columns={name: v[rows] for name, v in columns.items()}, polled=polled)
+        return _rows(pieces, rows.stop - rows.start)
+
     sizes = []
-    for path, start_ms, first, n in zip(paths, starts_ms, np.cumsum(lengths) - lengths, lengths):
-        lines = []
-        if style.metadata:
-            start = np.datetime_as_string(np.datetime64(int(start_ms), "ms"), unit="s", timezone="UTC")
-            lines += [f"# vehicle: {vehicle_id}", f"# start: {start}", f"# rows: {n}"]
-        lines.append(header)
+    for path, start_ms, n, end in zip(paths, starts_ms, lengths, ends):
         path.parent.mkdir(parents=True, exist_ok=True)
         with open(path, "wb") as fh:
-            fh.write(("\n".join(lines) + "\n").encode("utf-8"))
-            pacsv.write_csv(table.slice(int(first), int(n)), fh, options)
+            fh.write(_metadata(style, chosen, vehicle_id, start_ms, n))
+            r = int(end - n)
+            while r < end:
+                k = r // _BATCH_ROWS
+                stop = min(int(end), (k + 1) * _BATCH_ROWS)
+                fh.write(batch(k)[r - k * _BATCH_ROWS:stop - k * _BATCH_ROWS].tobytes().translate(None, _NUL))
+                r = stop
             sizes.append(fh.tell())
     return sizes
 
@@ -268,5 +370,5 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
 def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str, start_ms: int, time_ms: np.ndarray,
                    columns: dict[str, np.ndarray], polled: bool, analog: bool) -> int:
     """Write one trip's rows in ``style``; returns the bytes written. ``columns`` are canonical SI."""
-    return write_trips_csv([path], style, vehicle_id=vehicle_id, vin=vin, starts_ms=[start_ms], times_ms=[time_ms],
-                           columns=[columns], polled=polled, analog=analog)[0]
+    return write_trips_csv([path], style, vehicle_id=vehicle_id, vin=vin, starts_ms=[start_ms],
+                           lengths=[len(time_ms)], time_ms=time_ms, columns=columns, polled=polled, analog=analog)[0]

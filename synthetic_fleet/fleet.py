@@ -358,8 +358,10 @@ def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: f
     folder = out / "logs" / v.vehicle_id
     sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in trips],
                             v.style, vehicle_id=v.vehicle_id, vin=v.vin,
-                            starts_ms=[t.start.value // 1_000_000 for t in trips], times_ms=[s.time_ms for s in sims],
-                            columns=[s.columns for s in sims], polled=v.logger.name == "polled", analog=analog)
+                            starts_ms=[t.start.value // 1_000_000 for t in trips], lengths=[s.n_samples for s in sims],
+                            time_ms=np.concatenate([s.time_ms for s in sims]),
+                            columns={k: np.concatenate([s.columns[k] for s in sims]) for k in sims[0].columns},
+                            polled=v.logger.name == "polled", analog=analog)
     return sum(s.n_samples for s in sims), sum(sizes), len(trips)
 
 
