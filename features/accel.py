@@ -14,6 +14,7 @@ from features.row import FeatureRow
 from features.signals import (
     SMOOTH_S,
     TripArrays,
+    median,
     moving_mean,
     seconds,
     smooth_derivative,
@@ -110,18 +111,17 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
         return
     width = window_samples(WHEEL_ACCEL_HIGHPASS_S, trip.rate_hz)
 
-    def highpassed(x: np.ndarray) -> np.ndarray:
-        x = np.where(usable, x, np.nan)
-        return x - moving_mean(x, width)
-
     wheels = calibrated_or_raw(trip, ref)
-    sources = np.vstack([*(highpassed(smooth_derivative(wheels[i], trip)) for i in range(4)),
-                         highpassed(trip.signals["accel_long"])])
+    sources = np.where(usable, np.vstack([smooth_derivative(wheels, trip), trip.signals["accel_long"]]), np.nan)
+    sources = sources - moving_mean(sources, width)  # high-passed, all five at once
     sources = sources[:, np.isfinite(sources).all(axis=0)]
     if sources.shape[1] < 2:
         row.nan_all(names, "too_little_rolling")
         return
-    cov = np.cov(sources)  # var(x_i − x_j) = C_ii + C_jj − 2·C_ij, all ten pairs at once
+    # covariance matrix (np.cov's, without a BLAS call that waits for busy cores):
+    # var(x_i − x_j) = C_ii + C_jj − 2·C_ij, all ten pairs at once
+    centred = sources - sources.mean(axis=1, keepdims=True)
+    cov = np.einsum("ik,jk->ij", centred, centred) / (sources.shape[1] - 1)
     pair_var = {(i, j): cov[i, i] + cov[j, j] - 2.0 * cov[i, j] for i in range(5) for j in range(i + 1, 5)}
     own_var = three_cornered_hat(pair_var, 5)
     for name, var in zip(names, own_var[:4]):
@@ -152,8 +152,9 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
         row.nan(name, "too_little_driving")
         return
     x, y = vr[usable], ay[usable] - vr[usable]
-    if np.std(x) > 0.05:
-        _, intercept = np.polyfit(x, y, 1)
+    if np.std(x) > 0.05:  # least-squares line, in centred form (what np.polyfit(x, y, 1) solves)
+        dx = x - x.mean()
+        intercept = y.mean() - np.sum(dx * (y - y.mean())) / np.sum(dx * dx) * x.mean()
     else:
-        intercept = np.median(y)
+        intercept = median(y)
     row.set(name, intercept / G0_MPS2)

@@ -17,6 +17,7 @@ from features.accel import (
     lat_residual_feature,
     wheel_accel_features,
 )
+from features.columns import SampleColumns, n_rows, sample_columns
 from features.row import FeatureRow
 from features.signals import TripArrays, seconds, trip_arrays
 from features.spec import VehicleSpec
@@ -57,25 +58,27 @@ ROW_COLUMNS: tuple[str, ...] = (
 CORE_SIGNALS: tuple[str, ...] = tuple(s for s in NUMERIC_SIGNALS if s != "vehicle_speed")
 
 
-def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, object]:
+def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) -> dict[str, object]:
     """One trip's feature row (ROW_COLUMNS) from its canonical samples and its vehicle's spec.
 
-    ``samples``: one trip, columns of tracktrue.schema.SAMPLE_COLUMNS, SI units.
+    ``samples``: one trip, columns of tracktrue.schema.SAMPLE_COLUMNS, SI units, as a
+    DataFrame or as features.columns arrays (what the batch engines slice from Parquet).
     ``spec``: registry columns (wheelbase_m, track_front_m, track_rear_m,
     steering_ratio, understeer_gradient_deg_per_g); missing values make the
     features that need them NaN with ``spec_missing:<column>``.
     """
     vehicle = VehicleSpec.from_mapping(spec)
+    columns = sample_columns(samples)
     row = FeatureRow()
-    if len(samples) < 2:
+    if n_rows(columns) < 2:
         row.nan_all(FEATURE_COLUMNS, "too_few_samples")
         out = row.as_dict()
-        out.update(_empty_quality(samples))
-        out.update(_lamps(samples))
+        out.update(_empty_quality())
+        out.update(_lamps(columns))
         return {c: out.get(c, np.nan) for c in ROW_COLUMNS}
-    trip = trip_arrays(samples)
+    trip = trip_arrays(columns)
     windows = find_windows(trip, vehicle)
-    distance_km = trip_distance_km(trip)
+    distance_km = trip_distance_km(trip, windows.speed)
     ref = calibrate(trip, vehicle, windows)
 
     wheel_ratio_features(row, trip, vehicle, windows, ref)
@@ -92,7 +95,7 @@ def extract_trip_features(samples: pd.DataFrame, spec: Mapping) -> dict[str, obj
 
     out = row.as_dict()
     out.update(_quality(trip, windows, distance_km))
-    out.update(_lamps(samples))
+    out.update(_lamps(columns))
     out.update(steering_fit_sums(trip, vehicle, windows))
     return {c: out[c] for c in ROW_COLUMNS}
 
@@ -115,18 +118,18 @@ def _quality(trip: TripArrays, windows, distance_km: float) -> dict[str, object]
     return out
 
 
-def _lamps(samples: pd.DataFrame) -> dict[str, object]:
+def _lamps(columns: SampleColumns) -> dict[str, object]:
     """Whether each lamp was lit at any sample, and the distinct trouble codes ("" when none)."""
     out: dict[str, object] = {}
     for name in ("lamp_abs", "lamp_esc"):
-        lit = samples[name].to_numpy(dtype=bool, na_value=False) if name in samples.columns else np.zeros(0, bool)
-        out[f"{name}_on"] = bool(lit.any())
-    codes = pd.unique(samples["dtc"].dropna()) if "dtc" in samples.columns else []
+        out[f"{name}_on"] = bool(columns[name].any()) if name in columns else False
+    codes = columns.get("dtc")
+    codes = pd.unique(codes[pd.notna(codes)]) if codes is not None else []
     out["dtc"] = ",".join(sorted(str(c) for c in codes if str(c).strip()))
     return out
 
 
-def _empty_quality(samples: pd.DataFrame) -> dict[str, object]:
+def _empty_quality() -> dict[str, object]:
     out: dict[str, object] = dict.fromkeys((*QUALITY_COLUMNS, *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS), np.nan)
     out.update({"duration_s": 0.0, "distance_km": 0.0, "missing_fraction": 1.0,
                 "standstill_s": 0.0, "cruise_s": 0.0, "moving_s": 0.0, "signals": ""})

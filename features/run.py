@@ -9,16 +9,16 @@ finishes the job.
 
 from __future__ import annotations
 
+import functools
 import logging
 from collections import Counter
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import pandas as pd
-import pyarrow.parquet as pq
 from tqdm import tqdm
 
-from features.extract import ROW_COLUMNS, extract_trip_features
+from features.batch import TripTask
+from features.engines import run_in_pool
 from features.platform_params import (
     PLATFORM_SPECS_COLUMNS,
     filled_spec,
@@ -26,15 +26,10 @@ from features.platform_params import (
     platforms_needing_estimates,
 )
 from features.row import parse_nan_reasons
-from tracktrue.schema import SAMPLE_COLUMNS
+from features.table import MONTH_COLUMN, TRIP_FEATURES_COLUMNS, empty_rows, rows_frame
 from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
-
-ID_COLUMNS: tuple[str, ...] = ("trip_id", "vehicle_id", "start_time", "platform")
-#: Partition key of trip_features: one file per month, not one per trip.
-MONTH_COLUMN = "start_month"
-TRIP_FEATURES_COLUMNS: tuple[str, ...] = (*ID_COLUMNS, *ROW_COLUMNS, MONTH_COLUMN)
 
 
 @dataclass
@@ -71,9 +66,10 @@ class FeaturesSummary:
         return "\n".join(lines)
 
 
-def run_features(store: Store, rebuild: bool = False, progress: bool = False) -> FeaturesSummary:
+def run_features(store: Store, rebuild: bool = False, progress: bool = False, workers: int = 1) -> FeaturesSummary:
     """Compute features for trips without them (all trips with ``rebuild``) and publish.
 
+    ``workers`` > 1 spreads the sample files over that many local processes.
     Raises tracktrue.store.TableMissing when ingest has not published "trips".
     """
     trips = store.read_table("trips")
@@ -90,18 +86,19 @@ def run_features(store: Store, rebuild: bool = False, progress: bool = False) ->
 
         # Platforms lacking steering parameters: a first pass gives the trips'
         # steering-fit sums, the estimate fills the spec, then those trips are redone.
-        specs = platform_specs(vehicles, keep) if needs else platform_specs(vehicles, _empty_rows())
-        new = _compute(store, todo, registry, specs, summary, progress)
+        specs = platform_specs(vehicles, keep) if needs else platform_specs(vehicles, empty_rows())
+        engine = functools.partial(run_in_pool, workers=workers)
+        new = _compute(engine, store, todo, registry, specs, summary, progress)
         if needs:
             specs = platform_specs(vehicles, pd.concat([keep, new], ignore_index=True))
             redo = todo[todo["vehicle_id"].map(lambda v: registry.get(v, {}).get("platform") in needs)]
             if len(redo):
-                redone = _compute(store, redo, registry, specs, FeaturesSummary(), progress)
+                redone = _compute(engine, store, redo, registry, specs, FeaturesSummary(), progress)
                 new = pd.concat([new[~new["trip_id"].isin(redone["trip_id"])], redone], ignore_index=True)
         summary.n_computed = len(new)
         summary.nan_reasons = _count_reasons(new)
         summary.estimated = specs[specs["estimated"]].to_dict("records")
-        table = pd.concat([t for t in (keep, new) if len(t)], ignore_index=True) if len(keep) or len(new) else _empty_rows()
+        table = pd.concat([t for t in (keep, new) if len(t)], ignore_index=True) if len(keep) or len(new) else empty_rows()
         table = table.sort_values(["start_time", "trip_id"], kind="stable")[list(TRIP_FEATURES_COLUMNS)]
         store.publish_table("trip_features", table, partition_by=MONTH_COLUMN)
         store.publish_table("platform_specs", specs[list(PLATFORM_SPECS_COLUMNS)])
@@ -111,63 +108,46 @@ def run_features(store: Store, rebuild: bool = False, progress: bool = False) ->
 
 def _previous_rows(store: Store, rebuild: bool) -> pd.DataFrame:
     if rebuild or not store.has_table("trip_features"):
-        return _empty_rows()
+        return empty_rows()
     rows = store.read_table("trip_features")
     missing = set(TRIP_FEATURES_COLUMNS) - set(rows.columns)
     if missing:  # written by an older version: recompute everything
         log.warning("trip_features lacks %s; recomputing all trips", sorted(missing))
-        return _empty_rows()
+        return empty_rows()
     return rows
 
 
-def _empty_rows() -> pd.DataFrame:
-    frame = pd.DataFrame({c: pd.Series(dtype=float) for c in TRIP_FEATURES_COLUMNS})
-    return frame.astype({"trip_id": str, "vehicle_id": str, "platform": str, "signals": str, "dtc": str,
-                         "lamp_abs_on": bool, "lamp_esc_on": bool,
-                         "nan_reasons": str, MONTH_COLUMN: str, "start_time": "datetime64[us, UTC]"})
-
-
-def _compute(store, todo, registry, specs, summary, progress) -> pd.DataFrame:
-    """Feature rows for ``todo`` trips, reading each sample file once."""
+def _compute(engine, store, todo, registry, specs, summary, progress) -> pd.DataFrame:
+    """Feature rows for ``todo`` trips, one ``engine`` task per sample file (features.engines)."""
+    jobs = _file_jobs(todo, registry, specs)
+    sizes = {sample_file: len(tasks) for sample_file, tasks in jobs}
     rows = []
     bar = tqdm(total=len(todo), desc="features", unit="trip", disable=not progress)
-    for sample_file, group in todo.groupby("sample_file", sort=True):
-        samples = _read_samples(store.root / sample_file, list(group["trip_id"]), summary, sample_file)
-        if samples is None:
-            bar.update(len(group))
-            continue
-        by_trip = dict(tuple(samples.groupby("trip_id", sort=False))) if len(samples) else {}
-        for trip in group.itertuples(index=False):
-            vehicle = registry.get(trip.vehicle_id, {"vehicle_id": trip.vehicle_id})
-            spec = filled_spec(vehicle, specs)
-            part = by_trip.get(trip.trip_id, samples.iloc[:0])
-            row = extract_trip_features(part, spec)
-            platform = vehicle.get("platform")
-            row.update(trip_id=trip.trip_id, vehicle_id=trip.vehicle_id, start_time=trip.start_time,
-                       platform=None if pd.isna(platform) else platform)
-            rows.append(row)
-            bar.update(1)
+    for sample_file, result in engine(store.root, jobs):
+        if result.problem is not None:
+            summary.unreadable[sample_file] = result.problem
+        rows.extend(result.rows)
+        bar.update(sizes[sample_file])
     bar.close()
-    if not rows:
-        return _empty_rows()
-    frame = pd.DataFrame(rows)
-    frame["start_time"] = pd.to_datetime(frame["start_time"], utc=True)
-    frame[MONTH_COLUMN] = frame["start_time"].dt.strftime("%Y-%m")
-    return frame[list(TRIP_FEATURES_COLUMNS)]
+    return rows_frame(rows)
 
 
-def _read_samples(path: Path, trip_ids: list[str], summary: FeaturesSummary, name: str) -> pd.DataFrame | None:
-    try:
-        table = pq.read_table(path, filters=[("trip_id", "in", trip_ids)])
-    except (OSError, ValueError) as exc:
-        log.warning("cannot read %s: %s", path, exc)
-        summary.unreadable[name] = str(exc).splitlines()[0]
-        return None
-    missing = [c for c in SAMPLE_COLUMNS if c not in table.column_names]
-    if missing:
-        summary.unreadable[name] = f"missing columns {missing}"
-        return None
-    return table.to_pandas()
+def _file_jobs(todo: pd.DataFrame, registry: dict, specs: pd.DataFrame) -> list[tuple[str, list[TripTask]]]:
+    """(sample_file, tasks) per file, each task carrying its vehicle's filled spec."""
+    filled: dict[str, dict] = {}
+    jobs = []
+    for sample_file, group in todo.groupby("sample_file", sort=True):
+        tasks = []
+        for trip in group.itertuples(index=False):
+            if trip.vehicle_id not in filled:
+                filled[trip.vehicle_id] = filled_spec(registry.get(trip.vehicle_id, {"vehicle_id": trip.vehicle_id}),
+                                                      specs)
+            spec = filled[trip.vehicle_id]
+            platform = spec.get("platform")
+            tasks.append(TripTask(trip.trip_id, trip.vehicle_id, trip.start_time,
+                                  None if pd.isna(platform) else platform, spec))
+        jobs.append((sample_file, tasks))
+    return jobs
 
 
 def _count_reasons(rows: pd.DataFrame) -> Counter:

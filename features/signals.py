@@ -17,6 +17,7 @@ import pandas as pd
 from scipy.ndimage import correlate1d, uniform_filter1d
 from scipy.signal import savgol_coeffs
 
+from features.columns import SampleColumns, sample_columns
 from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
 
 #: A step longer than this many nominal sample periods is a gap: integration
@@ -68,10 +69,10 @@ class TripArrays:
         return self.wheels[POSITIONS.index(pos)]
 
 
-def trip_arrays(samples: pd.DataFrame) -> TripArrays:
-    """Convert one trip's canonical samples (tracktrue.schema.SAMPLE_COLUMNS) to arrays."""
-    time = pd.to_datetime(samples["time"], utc=True)
-    t_ns = time.to_numpy(dtype="datetime64[ns]").astype(np.int64)
+def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
+    """Convert one trip's canonical samples (a DataFrame or features.columns arrays) to arrays."""
+    columns = sample_columns(samples)
+    t_ns = columns["time"]
     order = np.argsort(t_ns, kind="stable")
     sorted_ = bool(np.all(order == np.arange(order.size)))
     t = (t_ns - t_ns[order[0]]).astype(np.float64) / 1e9 if t_ns.size else np.zeros(0)
@@ -79,9 +80,9 @@ def trip_arrays(samples: pd.DataFrame) -> TripArrays:
         t = t[order]
 
     def column(name: str) -> np.ndarray:
-        if name not in samples.columns:
+        if name not in columns:
             return np.full(t.size, np.nan)
-        values = samples[name].to_numpy(dtype=np.float64, na_value=np.nan)
+        values = columns[name]
         return values if sorted_ else values[order]
 
     steps = np.diff(t)
@@ -114,7 +115,15 @@ def smallest_step(values: np.ndarray) -> float:
     signal never changes.
     """
     steps = np.abs(np.diff(values[np.isfinite(values)]))
-    steps = np.round(steps, 9)
+    # rounding is monotonic, so the smallest step that survives rounding is the
+    # rounded smallest step above half a unit: no need to round every step
+    candidates = steps[steps >= 5e-10]
+    if candidates.size == 0:
+        return np.nan
+    smallest = float(np.round(candidates.min(), 9))
+    if smallest > 0:
+        return smallest
+    steps = np.round(steps, 9)  # the smallest candidate rounded down to 0: the exact, slower way
     steps = steps[steps > 0]
     return float(steps.min()) if steps.size else np.nan
 
@@ -127,19 +136,29 @@ def window_samples(seconds: float, rate_hz: float, minimum: int = 1) -> int:
 
 
 def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
-    """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid).
+    """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid), along the last axis.
 
-    At the ends the window shrinks to the samples that exist.
+    At the ends the window shrinks to the samples that exist. A (k, n) array
+    filters its k rows in one call.
     """
     valid = np.isfinite(x)
     if valid.all():
-        total = uniform_filter1d(x, width, mode="constant", cval=0.0)
-        count = uniform_filter1d(np.ones(x.size), width, mode="constant", cval=0.0)
-        return total / count
-    total = uniform_filter1d(np.where(valid, x, 0.0), width, mode="constant", cval=0.0)
-    count = uniform_filter1d(valid.astype(np.float64), width, mode="constant", cval=0.0)
+        return uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0) / _window_share(x.shape[-1], width)
+    both = uniform_filter1d(np.stack([np.where(valid, x, 0.0), valid.astype(np.float64)]), width, axis=-1,
+                            mode="constant", cval=0.0)
+    total, count = both[0], both[1]
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(count > 0.5 / width, total / count, np.nan)
+
+
+def _window_share(n: int, width: int) -> np.ndarray:
+    """Share of a centred ``width`` window inside an ``n``-sample trace (1 away from the ends)."""
+    share = np.ones(n)
+    half = width // 2
+    edges = np.arange(n) if n <= 2 * width else np.concatenate((np.arange(half), np.arange(n - half, n)))
+    inside = np.minimum(edges + half, n - 1) - np.maximum(edges - half, 0) + 1
+    share[edges] = inside / width
+    return share
 
 
 def moving_std(x: np.ndarray, width: int) -> np.ndarray:
@@ -160,25 +179,32 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
 
 
 def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
-    """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second.
+    """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second, of each row of ``x``.
 
     Savitzky & Golay (1964), the weights from scipy.signal.savgol_coeffs. The window is at least
     5 samples, so at low rates it is longer than ``window_s`` (a quadratic
     through fewer points follows the noise). NaN runs are bridged linearly
     before filtering and set back to NaN after; samples near a time gap or
-    within half a window of the trip's ends are NaN.
+    within half a window of the trip's ends are NaN. ``x`` is one trace or a
+    (k, n) stack filtered in one call.
     """
     w = window_samples(window_s, trip.rate_hz, minimum=5)
-    out = np.full(x.size, np.nan)
-    valid = np.isfinite(x)
-    if valid.sum() < w:
-        return out
-    idx = np.arange(x.size)
-    filled = x if valid.all() else np.interp(idx, idx[valid], x[valid])
-    out = correlate1d(filled, _savgol_derivative_weights(w, 1.0 / trip.rate_hz), mode="nearest")
-    out[~valid | near_gap(trip, w // 2)] = np.nan
-    out[: w // 2] = out[x.size - w // 2:] = np.nan  # the trip's ends have no full window
-    return out
+    rows = np.atleast_2d(x)
+    valid = np.isfinite(rows)
+    enough = valid.sum(axis=-1) >= w
+    out = np.full(rows.shape, np.nan)
+    if enough.any():
+        filled = rows[enough]
+        idx = np.arange(rows.shape[-1])
+        for i, ok in enumerate(valid[enough]):
+            if not ok.all():
+                filled[i] = np.interp(idx, idx[ok], filled[i][ok])
+        out[enough] = correlate1d(filled, _savgol_derivative_weights(w, 1.0 / trip.rate_hz), axis=-1,
+                                  mode="nearest")
+        out[~valid | near_gap(trip, w // 2)] = np.nan
+        out[:, : w // 2] = np.nan  # the trip's ends have no full window
+        out[:, rows.shape[-1] - w // 2:] = np.nan
+    return out.reshape(np.shape(x))
 
 
 @lru_cache(maxsize=64)
@@ -191,12 +217,28 @@ def median_of_four(values: np.ndarray) -> np.ndarray:
     """Per-sample median of the (4, n) wheel array, ignoring NaN wheels.
 
     The median of four independent sensors is a vote: one wheel reading zero or
-    jittering cannot move it far. All four present: (sum − max − min) / 2.
+    jittering cannot move it far. All four present: the mean of the middle two,
+    from a sorting network (the larger of the two pair minima and the smaller
+    of the two pair maxima).
     """
-    out = (values.sum(axis=0) - values.max(axis=0) - values.min(axis=0)) / 2.0
-    partial = ~np.isfinite(out)
+    low_a, high_a = np.minimum(values[0], values[1]), np.maximum(values[0], values[1])
+    low_b, high_b = np.minimum(values[2], values[3]), np.maximum(values[2], values[3])
+    out = 0.5 * (np.maximum(low_a, low_b) + np.minimum(high_a, high_b))
+    partial = np.isnan(out)
     if partial.any():
         out[partial] = _nan_median_of_four(values[:, partial])
+    return out
+
+
+def second_smallest_of_four(values: np.ndarray) -> np.ndarray:
+    """Per-sample second-smallest of the (4, n) wheel array, NaN counted as largest (as np.sort orders it)."""
+    missing = np.isnan(values)
+    v = np.where(missing, np.inf, values) if missing.any() else values
+    low_a, high_a = np.minimum(v[0], v[1]), np.maximum(v[0], v[1])
+    low_b, high_b = np.minimum(v[2], v[3]), np.maximum(v[2], v[3])
+    out = np.minimum(np.maximum(low_a, low_b), np.minimum(high_a, high_b))
+    if v is not values:
+        out[missing.sum(axis=0) > 2] = np.nan
     return out
 
 
@@ -215,7 +257,7 @@ def median_of_three(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 def seconds(mask: np.ndarray, trip: TripArrays) -> float:
     """Time covered by the samples in ``mask``, in s."""
-    return float(np.sum(trip.dt, where=mask))
+    return float(trip.dt[mask].sum())
 
 
 def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: float = 0.0) -> np.ndarray:
@@ -240,12 +282,21 @@ def count_events(mask: np.ndarray) -> int:
     return int(np.count_nonzero(mask & ~np.concatenate(([False], mask[:-1]))))
 
 
+def median(x: np.ndarray) -> float:
+    """Median of finite values (np.median's result, from one partition instead of its NaN checks)."""
+    n = x.size
+    if n == 0:
+        return np.nan
+    part = np.partition(x, [(n - 1) // 2, n // 2])
+    return float(0.5 * (part[(n - 1) // 2] + part[n // 2]))
+
+
 def robust_spread(x: np.ndarray) -> float:
     """1.4826 · median absolute deviation: the standard deviation for Gaussian data, robust to outliers."""
     x = x[np.isfinite(x)]
     if x.size == 0:
         return np.nan
-    return float(1.4826 * np.median(np.abs(x - np.median(x))))
+    return float(1.4826 * median(np.abs(x - median(x))))
 
 
 def white_noise_variance(x: np.ndarray, mask: np.ndarray) -> float:

@@ -19,6 +19,7 @@ from features.row import FeatureRow
 from features.signals import (
     TripArrays,
     count_events,
+    median,
     median_of_four,
     median_of_three,
     moving_mean,
@@ -72,7 +73,7 @@ class WheelReference:
     reason: str | None  #: why there is no calibration
 
 
-def distance_ratios(speeds: np.ndarray, against: str = "mean") -> np.ndarray:
+def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarray | None = None) -> np.ndarray:
     """Each wheel's distance over the reference wheel's: Σ v_pos / Σ ref(v), for (4, n) speeds.
 
     ``against`` "mean" is DESIGN.md's v_pos/mean(v) (the ratio features);
@@ -85,8 +86,9 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean") -> np.ndarray:
     distance stays right, while the median of its lopsided once-per-revolution
     error is not zero. Samples where any wheel strays more than 10 % from the
     median of four (spin, lock, a glitch) are left out for all wheels alike.
+    ``median``: the median of four of ``speeds`` when the caller has it already.
     """
-    median = median_of_four(speeds)
+    median = median_of_four(speeds) if median is None else median
     with np.errstate(invalid="ignore", divide="ignore"):
         sane = np.all(np.abs(speeds / median - 1.0) < GLITCH_FRAC, axis=0)
     kept = speeds[:, sane]
@@ -121,7 +123,7 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         reason = windows.straight_reason or "no_straight_cruise"
         return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, nan,
                               reason)
-    offset = distance_ratios(trip.wheels[:, windows.cruise], against="median") - 1.0
+    offset = distance_ratios(trip.wheels[:, windows.cruise], "median", windows.speed[windows.cruise]) - 1.0
     calibrated = trip.wheels / (1.0 + offset)[:, None]
     rl, rr = calibrated[2], calibrated[3]
     reason = spec.missing("track_rear_m", "track_front_m")
@@ -198,12 +200,12 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
     usable = wheel_comparison_window(row, names, trip, windows, JITTER_MIN_RATE_HZ, JITTER_MIN_S)
     if usable is None:
         return
-    typical_speed = float(np.median(windows.speed[usable]))
+    typical_speed = median(windows.speed[usable])
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
     with np.errstate(invalid="ignore", divide="ignore"):
         log_speed = np.log(np.where(usable, trip.wheels, np.nan))
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
-    fast = np.vstack([x - moving_mean(x, width) for x in log_speed])[:, usable]
+    fast = (log_speed - moving_mean(log_speed, width))[:, usable]
     pair_var = {(i, j): robust_spread(fast[i] - fast[j]) ** 2 for i, j in WHEEL_PAIRS}
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
@@ -235,7 +237,6 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
         row.set(name, 100.0 * count_events(dropped) / distance_km)
 
 
-def trip_distance_km(trip: TripArrays) -> float:
-    """Distance = ∫ median of the four wheel speeds dt, in km."""
-    speed = median_of_four(trip.wheels)
+def trip_distance_km(trip: TripArrays, speed: np.ndarray) -> float:
+    """Distance = ∫ speed dt, in km; ``speed`` the median of the four wheel speeds (Windows.speed)."""
     return float(np.nansum(speed * trip.dt) / 1000.0)

@@ -25,9 +25,11 @@ from features.signals import (
     SMOOTH_S,
     TripArrays,
     keep_runs,
+    median,
     median_of_four,
     moving_mean,
     moving_std,
+    second_smallest_of_four,
     smooth_derivative,
     window_samples,
 )
@@ -73,9 +75,8 @@ def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
     speed = median_of_four(trip.wheels)
     accel = smooth_derivative(speed, trip)
     brake_on = trip.brake == 1.0
-    ordered = np.sort(trip.wheels, axis=0)
     with np.errstate(invalid="ignore"):
-        moving = ordered[1] >= MOVING_SPEED_MPS  # at least three wheels agree
+        moving = second_smallest_of_four(trip.wheels) >= MOVING_SPEED_MPS  # at least three wheels agree
         calm = moving & ~brake_on & (np.abs(accel) < CALM_ACCEL_MPS2)
     standstill, standstill_reason = _standstill(trip, brake_on)
     votes, straight_reason = _straight_votes(trip, spec, speed, calm)
@@ -155,7 +156,7 @@ def _straight_votes(trip, spec, speed, calm) -> tuple[dict[str, np.ndarray], str
         if ref.size == 0:
             continue
         with np.errstate(invalid="ignore"):
-            votes[name] = np.abs((value - np.median(ref)) * scale) < STRAIGHT_YAW_RADPS
+            votes[name] = np.abs((value - median(ref)) * scale) < STRAIGHT_YAW_RADPS
     if len(votes) < 2:
         return votes, "straight_unconfirmed"
     return votes, None

@@ -16,6 +16,7 @@ from features.signals import (
     SMOOTH_S,
     TripArrays,
     deming_fit,
+    median,
     moving_mean,
     seconds,
     white_noise_variance,
@@ -101,7 +102,7 @@ def yaw_regression_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec
     x, y = wheel[usable], yaw[usable]
     if seconds(usable & (np.abs(wheel) >= STEER_TURN_MIN_RADPS), trip) < YAW_GAIN_MIN_TURN_S:
         row.nan("yaw_gain", "too_little_turning")
-        row.set("yaw_offset_dps", _to_deg(np.median(y - x)))
+        row.set("yaw_offset_dps", _to_deg(median(y - x)))
         return
     noise_ratio = (white_noise_variance(trip.signals["yaw_rate"], usable)
                    / white_noise_variance(ref.yaw_rate, usable))
