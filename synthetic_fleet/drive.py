@@ -190,11 +190,12 @@ def _boxcar(x: np.ndarray, width_s: float, dt: float) -> np.ndarray:
 
 
 def _upsample(coarse: np.ndarray, step: int, n: int) -> np.ndarray:
-    """Linear interpolation of values given at every ``step``-th sample onto all ``n`` samples."""
-    k = np.arange(n)
-    i, frac = np.divmod(k, step)
-    frac = frac / step
-    return coarse[i] * (1.0 - frac) + coarse[np.minimum(i + 1, len(coarse) - 1)] * frac
+    """Linear interpolation of values given at every ``step``-th sample onto all ``n`` samples
+    (one row of ``step`` samples per coarse interval; the last value is held)."""
+    frac = np.arange(step) / step
+    rows = -(-n // step)
+    following = np.append(coarse[1:], coarse[-1])[:rows]
+    return (coarse[:rows, None] * (1.0 - frac) + following[:, None] * frac).ravel()[:n]
 
 
 def _smooth_noise(rng: np.random.Generator, n: int, rate_hz: float, tau_s: float) -> np.ndarray:
@@ -208,14 +209,13 @@ def _smooth_noise(rng: np.random.Generator, n: int, rate_hz: float, tau_s: float
 
 def _road_profile(dist_m: np.ndarray, step: int, rng: np.random.Generator, amplitude: float,
                   mean: float) -> np.ndarray:
-    """A smooth road property along distance: a few sinusoids of 250-2500 m wavelength
-    (evaluated every ``step``-th sample and interpolated between)."""
+    """A smooth road property along distance: a few sinusoids of 250-2500 m wavelength,
+    evaluated every ``step``-th sample (the caller interpolates between)."""
     lam = rng.uniform(250.0, 2500.0, 3)
     amp = amplitude * rng.uniform(0.3, 1.0, 3)
     phase = rng.uniform(0.0, 2 * np.pi, 3)
     coarse = dist_m[::step]
-    values = mean + (amp * np.sin(2 * np.pi * coarse[:, None] / lam + phase)).sum(axis=1)
-    return _upsample(values, step, len(dist_m))
+    return mean + (amp * np.sin(2 * np.pi * coarse[:, None] / lam + phase)).sum(axis=1)
 
 
 def _phase_index(ends_s: np.ndarray, n: int, rate_hz: float) -> np.ndarray:
@@ -253,17 +253,22 @@ def drive_trace(drive: str, duration_s: float, rate_hz: float, rng: np.random.Ge
 
     dist = np.cumsum(v) * dt
     step = max(int(round(rate_hz)), 1)
-    grade = _road_profile(dist, step, rng, grade_amplitude, 0.0)
-    grade -= np.sum(grade * v) / max(np.sum(v), 1e-9)
-    bank = _road_profile(dist, step, rng, 0.004, 0.008)
+    coarse_grade = _road_profile(dist, step, rng, grade_amplitude, 0.0)
+    coarse_grade -= np.sum(_upsample(coarse_grade, step, n) * v) / max(np.sum(v), 1e-9)
+    coarse_bank = _road_profile(dist, step, rng, 0.004, 0.008)
+    # Angles from slopes on the coarse grid (the profile is smooth over a step: the
+    # interpolated angle and the angle of the interpolated slope agree to ~1e-10 rad).
+    grade_rad = _upsample(np.arctan(coarse_grade), step, n)
+    bank_rad = _upsample(np.arctan(coarse_bank), step, n)
     parked_start = t < start_hold
     parked_end = t >= ends[-1] - end_hold
-    grade = np.where(parked_start, park_grade_start, np.where(parked_end, park_grade_end, grade))
-    bank = np.where(parked_start | parked_end, 0.0, bank)
+    grade_rad = np.where(parked_start, np.arctan(park_grade_start),
+                         np.where(parked_end, np.arctan(park_grade_end), grade_rad))
+    bank_rad = np.where(parked_start | parked_end, 0.0, bank_rad)
     parked = parked_start | parked_end
     # The driver holds the brake while decelerating and at stops; a parked vehicle
     # stands on its parking brake, the pedal pressed only for the seconds of
     # starting off (engine start, selecting a gear) and of coming to rest.
     settled = (t < start_hold - brake_s[0]) | (t >= ends[-1] - end_hold + brake_s[1])
     brake = ((accel < -0.3) | (v == 0.0)) & ~settled
-    return DriveTrace(t, v, accel, kappa, np.arctan(grade), np.arctan(bank), brake, parked)
+    return DriveTrace(t, v, accel, kappa, grade_rad, bank_rad, brake, parked)

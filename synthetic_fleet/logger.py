@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from synthetic_fleet.draws import bernoulli_successes
 from tracktrue.schema import NUMERIC_SIGNALS
 
 
@@ -41,31 +42,49 @@ def logger_rate_hz(profile: LoggerProfile, fleet_rate_hz: float) -> float:
 
 def apply_logger(signals: dict[str, np.ndarray], t_s: np.ndarray, rate_hz: float, profile: LoggerProfile,
                  rng: np.random.Generator) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-    """(row times in integer milliseconds from the trip start, logged columns)."""
+    """(row times in integer milliseconds from the trip start, logged columns).
+
+    Each numeric cell is read up to ``max_read_lag_s`` before its row (one lag
+    per signal and trip) and may repeat the previous row's reading (stale);
+    rows drop, one gap may open, rows duplicate, cells go missing. Every
+    column is gathered once, from the source sample its cell shows.
+    """
     n = len(t_s)
     idx = np.arange(n)
-    out = {}
-    for name, values in signals.items():
-        if profile.max_read_lag_s > 0 and name in NUMERIC_SIGNALS:
-            lag = int(round(rng.uniform(0.0, profile.max_read_lag_s) * rate_hz))
-            values = values[np.maximum(idx - lag, 0)]
-        if profile.stale_prob > 0 and name in NUMERIC_SIGNALS:
-            values = values[np.maximum(idx - (rng.random(n) < profile.stale_prob), 0)]
-        out[name] = values
-    keep = rng.random(n) >= profile.drop_row_prob
+    numeric = [name for name in signals if name in NUMERIC_SIGNALS]
+    lags = (np.rint(rng.uniform(0.0, profile.max_read_lag_s, len(numeric)) * rate_hz).astype(np.int64)
+            if profile.max_read_lag_s > 0 else np.zeros(len(numeric), np.int64))
+    stale = bernoulli_successes(rng, len(numeric) * n, profile.stale_prob)
+    keep = np.ones(n, dtype=bool)
+    keep[bernoulli_successes(rng, n, profile.drop_row_prob)] = False
     if rng.random() < profile.gap_prob and n > 100:
         g0 = rng.uniform(0.1, 0.9) * t_s[-1]
         keep &= ~((t_s >= g0) & (t_s < g0 + rng.uniform(*profile.gap_s)))
     keep[[0, -1]] = True
-    rows = np.repeat(idx[keep], 1 + (rng.random(int(keep.sum())) < profile.dup_row_prob))
+    kept = idx[keep]
+    copies = np.ones(len(kept), dtype=np.int64)
+    copies[bernoulli_successes(rng, len(kept), profile.dup_row_prob)] = 2
+    rows = np.repeat(kept, copies)
     period = 1.0 / rate_hz
-    jitter = np.clip(rng.normal(0.0, profile.jitter_s, n), -0.4 * period, 0.4 * period)
+    jitter = np.clip(profile.jitter_s * rng.standard_normal(n, dtype=np.float32), -0.4 * period, 0.4 * period)
     jitter[0] = abs(jitter[0])
     time_ms = np.round((t_s + jitter) * 1000.0).astype(np.int64)[rows]
+    missing = bernoulli_successes(rng, len(numeric) * len(rows), profile.missing_cell_prob)
+    stale_signal, stale_row = np.divmod(stale, n)
+    missing_signal, missing_row = np.divmod(missing, len(rows))
     logged = {}
-    for name, values in out.items():
-        values = values[rows]
-        if name in NUMERIC_SIGNALS:
-            values = np.where(rng.random(len(rows)) < profile.missing_cell_prob, np.nan, values)
-        logged[name] = values
+    for name, values in signals.items():
+        if name not in NUMERIC_SIGNALS:
+            logged[name] = values[rows]
+            continue
+        i = numeric.index(name)
+        if lags[i] or len(stale):
+            source = np.maximum(idx - lags[i], 0)
+            struck = stale_row[stale_signal == i]
+            source[struck] = source[np.maximum(struck - 1, 0)]  # the previous row's reading, again
+            column = values[source[rows]]
+        else:
+            column = values[rows]
+        column[missing_row[missing_signal == i]] = np.nan
+        logged[name] = column
     return time_ms, logged

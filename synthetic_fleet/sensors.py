@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from synthetic_fleet.draws import bernoulli_successes
 from synthetic_fleet.drive import DriveTrace
 from synthetic_fleet.faults import MAGNITUDE_AT_SEVERITY_1 as MAG, parse_fault
 from synthetic_fleet.platforms import Platform
@@ -130,17 +131,19 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
     # radius, so a smaller tyre (or more slip) reads faster.
     wheels = centre * (1.0 + slip) / radius[:, None] + noise * (WHEEL_NOISE_MPS + WHEEL_NOISE_FRAC * centre)
     if cond.rough_road:
-        ripple = rough_rng.standard_normal(n)  # common to all wheels: the body bounces, every wheel sees it
-        ripple = np.convolve(ripple, np.ones(3) / np.sqrt(3), mode="same")
-        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[None, :] + ROUGH_WHEEL_FRAC * rough_rng.standard_normal((4, n))
+        ripple = rough_rng.standard_normal(n, dtype=np.float32)  # common to all wheels: the body bounces
+        ripple = np.convolve(ripple, np.ones(3, np.float32) / np.sqrt(np.float32(3)), mode="same")
+        wheels *= 1.0 + ROUGH_RIPPLE_FRAC * ripple[None, :] + ROUGH_WHEEL_FRAC * rough_rng.standard_normal(
+            (4, n), dtype=np.float32)
     fault = parse_fault(cond.fault) if cond.fault else None
     if fault is not None and fault.kind == "tone_ring" and cond.severity > 0:
         i = POSITIONS.index(fault.position)
         v = wheels[i]
         angle = np.cumsum(v) * dt / spec.tyre_radius_m + fault_rng.uniform(0, 2 * np.pi)
         periodic = np.sin(angle) + 0.5 * np.sin(2 * angle + 1.3)
-        steps = (fault_rng.random(n) < min(0.3, MAG["tone_ring_step_prob"] * cond.severity)) \
-            * fault_rng.standard_normal(n)
+        steps = np.zeros(n)
+        struck = bernoulli_successes(fault_rng, n, min(0.3, MAG["tone_ring_step_prob"] * cond.severity))
+        steps[struck] = fault_rng.standard_normal(len(struck))
         wheels[i] = v * (1.0 + cond.severity * (MAG["tone_ring_error_frac"] * periodic
                                                 + MAG["tone_ring_step_frac"] * steps))
     np.maximum(wheels, 0.0, out=wheels)
@@ -150,7 +153,7 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
         # gap widens, the speed below which it is too weak to count teeth rises.
         i = POSITIONS.index(fault.position)
         cutoff = CUTOFF_MPS[spec.wheel_sensor_kind] + MAG["air_gap_dropout_speed_mps"] * cond.severity**1.2
-        runout = np.exp(0.12 * fault_rng.standard_normal(n))  # ring and bearing runout modulate the amplitude
+        runout = np.exp(0.12 * fault_rng.standard_normal(n, dtype=np.float32))  # ring and bearing runout modulate the amplitude
         wheels[i, wheels[i] * runout < cutoff] = 0.0
     return wheels
 
@@ -171,10 +174,12 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     road_wheel = road_wheel_angle_for_curvature(v, trace.curvature_1pm, spec.wheelbase_m, k)
     yaw = yaw_rate_single_track(v, road_wheel, spec.wheelbase_m, k)
     centre = wheel_centre_speeds(v, yaw, spec.wheelbase_m, spec.track_front_m, spec.track_rear_m)
-    noise = noise_rng.standard_normal((8, n))  # 4 wheels, yaw, steering, 2 accelerometers
+    # 4 wheels, yaw, steering, 2 accelerometers; single precision is ample for noise and twice as fast to draw
+    noise = noise_rng.standard_normal((8, n), dtype=np.float32)
     wheels = _wheel_signals(trace, spec, health, cond, centre, noise[:4], rough_rng, fault_rng)
 
-    sensor_c = cond.ambient_c + WARMUP_C * (1.0 - np.exp(-trace.t_s / WARMUP_TAU_S)) - REFERENCE_C
+    # Single precision where a value is a small correction (and its functions are several times faster).
+    sensor_c = cond.ambient_c + WARMUP_C * (1.0 - np.exp(-trace.t_s.astype(np.float32) / WARMUP_TAU_S)) - REFERENCE_C
     rough = 1.0 if cond.rough_road else 0.0
     s = health.fault_sign
     yaw_gain = 1.0 + health.yaw_gain_error + s * _fault_size(cond, "yaw_gain", "yaw_gain_frac")
@@ -193,8 +198,10 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
     offset_g[0] += s * _fault_size(cond, "accel_long_offset", "accel_long_offset_g")
     offset_g[1] += s * _fault_size(cond, "accel_lat_offset", "accel_lat_offset_g")
     accel_noise = noise[6:] * (ACCEL_NOISE_MPS2 + rough * ROUGH_ACCEL_MPS2)
-    accel_long = trace.accel_mps2 + G0_MPS2 * (np.sin(trace.grade_rad + nose_up) + offset_g[0]) + accel_noise[0]
-    accel_lat = v * yaw + G0_MPS2 * (np.sin(trace.bank_rad) + offset_g[1]) + accel_noise[1]
+    tilt_long = np.sin((trace.grade_rad + nose_up).astype(np.float32))
+    tilt_lat = np.sin(trace.bank_rad.astype(np.float32))
+    accel_long = trace.accel_mps2 + G0_MPS2 * (tilt_long + offset_g[0]) + accel_noise[0]
+    accel_lat = v * yaw + G0_MPS2 * (tilt_lat + offset_g[1]) + accel_noise[1]
 
     # The controller's vehicle speed: mean of the middle two wheels, robust to one bad wheel.
     middle = 0.5 * (wheels.sum(axis=0) - wheels.max(axis=0) - wheels.min(axis=0))

@@ -45,6 +45,7 @@ def wheel_centre_speeds(speed_mps, yaw_rate_rps, wheelbase_m: float, track_front
     half_f, half_r = 0.5 * track_front_m, 0.5 * track_rear_m
     rl = v - r * half_r
     rr = v + r * half_r
-    fl = np.hypot(v - r * half_f, r * wheelbase_m)
-    fr = np.hypot(v + r * half_f, r * wheelbase_m)
+    lateral_sq = (r * wheelbase_m) ** 2  # no overflow at vehicle speeds: √(a² + b²) without hypot's care
+    fl = np.sqrt((v - r * half_f) ** 2 + lateral_sq)
+    fr = np.sqrt((v + r * half_f) ** 2 + lateral_sq)
     return np.stack([fl, fr, rl, rr])
