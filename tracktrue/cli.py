@@ -6,6 +6,7 @@ Exit codes (also in the README):
   2  usage error or unusable input (message says which file / row / problem)
   3  another run holds the store's lock
   4  a prerequisite is missing (e.g. no features yet: run the earlier stage)
+  5  a stage of `tracktrue update` failed (the message names it; see tracktrue/update.py)
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from pathlib import Path
 
 from tracktrue import __version__
 from tracktrue.errors import UserError
+from tracktrue.schema import SERVICE_EVENT_KINDS
 from tracktrue.store import LockHeld, Store, TableMissing
 
 EXIT_OK, EXIT_REJECTS, EXIT_USAGE, EXIT_LOCKED, EXIT_MISSING = 0, 1, 2, 3, 4
@@ -89,12 +91,45 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--vehicles", type=Path, metavar="vehicles.csv", help="load or update the vehicle registry")
     p.add_argument("--trip-gap", type=_positive_float, default=300.0, metavar="SECONDS",
                    help="split a file into trips on time gaps longer than this (default 300 s)")
+    p.add_argument("--service-events", type=Path, metavar="FILE.csv",
+                   help="also import service events (see `tracktrue service-events --help`)")
     p.set_defaults(func=cmd_ingest)
+
+    p = sub.add_parser("service-events", help="import repairs, tyre work and inspection outcomes",
+                       description="Import a service-events CSV (vehicle_id, date YYYY-MM-DD, kind, component, "
+                       "note) into the catalog and publish the service_events table; scoring restarts the baselines "
+                       "each event touches (models/service.py). kind: " + ", ".join(SERVICE_EVENT_KINDS) + " (alignment = wheel_alignment). "
+                       "component: a ranking component (e.g. wheel_sensor_fl, tyre_rr), front_axle, rear_axle, "
+                       "tyres, or empty for the whole vehicle. Bad rows are reported with their line and not "
+                       "stored (exit code 1); importing a file again adds nothing.")
+    p.add_argument("file", type=Path, metavar="FILE.csv", help="service-events CSV")
+    _add_store(p)
+    p.set_defaults(func=cmd_service_events)
+
+    p = sub.add_parser("update", help="nightly: ingest new logs, features for new trips, score, publish",
+                       description="One command for a scheduler: ingest what is new (logs, registry, service "
+                       "events, service events entered in the dashboard), compute features for new trips, score "
+                       "and publish. Records runs/last_success.json and appends to runs/update.log. Exit codes: "
+                       "0 ok, 1 finished with rejected input, 2 bad arguments, 3 another run holds the lock, "
+                       "4 a prerequisite is missing, 5 a stage failed (the message names it).")
+    p.add_argument("paths", nargs="+", type=Path, metavar="PATH", help="CSV log files or folders")
+    _add_store(p)
+    p.add_argument("--vehicles", type=Path, metavar="vehicles.csv", help="load or update the vehicle registry")
+    p.add_argument("--service-events", type=Path, metavar="FILE.csv", help="import service events")
+    p.add_argument("--profile", type=Path, metavar="FILE.toml", help="mapping profile for unrecognised exports")
+    p.add_argument("--trip-gap", type=_positive_float, default=300.0, metavar="SECONDS",
+                   help="split a file into trips on time gaps longer than this (default 300 s)")
+    p.set_defaults(func=cmd_update)
 
     p = sub.add_parser("features", help="compute per-trip sensor-disagreement features",
                        description="Compute features for trips that have none yet (incremental).")
     _add_store(p)
     p.add_argument("--rebuild", action="store_true", help="recompute every trip")
+    p.add_argument("--engine", choices=("local", "dask"), default="local",
+                   help="where to compute: this process (default) or a Dask cluster (needs the dask extra)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="with --engine dask: the Dask scheduler, e.g. tcp://host:8786 "
+                   "(default: a local cluster sized to this machine)")
     p.set_defaults(func=cmd_features)
 
     p = sub.add_parser("score", help="score trips and vehicles against the fleet",
@@ -163,13 +198,34 @@ def cmd_ingest(args) -> int:
     summary = run_ingest(args.paths, store, profile=args.profile, vehicles_csv=args.vehicles,
                          trip_gap_s=args.trip_gap, progress=_progress(args))
     print(summary.describe())
+    if args.service_events is None:
+        return summary.exit_code
+    return max(summary.exit_code, cmd_service_events(argparse.Namespace(file=args.service_events, store=args.store)))
+
+
+def cmd_service_events(args) -> int:
+    from ingest.service_events import import_service_events
+
+    summary = import_service_events(args.file, Store.open(args.store))
+    print(summary.describe())
+    return summary.exit_code
+
+
+def cmd_update(args) -> int:
+    from tracktrue.update import run_update
+
+    summary = run_update(args.paths, Store.open(args.store), vehicles_csv=args.vehicles,
+                         service_events_csv=args.service_events, profile=args.profile, trip_gap_s=args.trip_gap,
+                         progress=_progress(args))
+    print(summary.describe())
     return summary.exit_code
 
 
 def cmd_features(args) -> int:
     from features import run_features
 
-    summary = run_features(Store.open(args.store), rebuild=args.rebuild, progress=_progress(args))
+    summary = run_features(Store.open(args.store), rebuild=args.rebuild, progress=_progress(args),
+                           engine=args.engine, scheduler=args.scheduler)
     print(summary.describe())
     return EXIT_OK
 

@@ -159,3 +159,25 @@ QUALITY_COLUMNS: tuple[str, ...] = (
     "cruise_s",
     "moving_s",
 )
+
+#: Service events (``tracktrue service-events FILE.csv`` and the dashboard's
+#: entry form), published by ingest as ``service_events``. The kinds are the
+#: ones models/service.py tells apart (tyre work, alignment, the rest).
+SERVICE_EVENT_KINDS: tuple[str, ...] = (
+    "repair",
+    "sensor_replaced",
+    "tone_ring_replaced",
+    "wheel_alignment",
+    "calibration",
+    "tyre_change",
+    "tyre_rotation",
+    "spare_fitted",
+    "spare_removed",
+    "no_fault_found",
+)
+#: Other spellings accepted on import and stored as the kind they name.
+SERVICE_EVENT_KIND_ALIASES: dict[str, str] = {"alignment": "wheel_alignment"}
+#: Components a service event may name besides ``COMPONENTS``: work on a whole
+#: axle or on all four tyres. An empty component means the whole vehicle.
+SERVICE_EVENT_AREAS: tuple[str, ...] = ("front_axle", "rear_axle", "tyres")
+SERVICE_EVENTS_COLUMNS: tuple[str, ...] = ("vehicle_id", "date", "kind", "component", "note", "source")
