@@ -15,6 +15,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pyarrow as pa
@@ -48,6 +49,11 @@ class FileResult:
 
 class UnreadableSamples(Exception):
     """A sample part file that cannot be read or lacks canonical columns."""
+
+
+def locate(root: str, sample_file: str) -> str:
+    """Where a sample file (a path relative to the store root) is, under a root path or URL."""
+    return f"{root.rstrip('/')}/{sample_file}" if "://" in root else str(Path(root) / sample_file)
 
 
 def compute_file(location: str, tasks: Sequence[TripTask]) -> FileResult:

@@ -9,9 +9,11 @@ finishes the job.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import logging
 from collections import Counter
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import pandas as pd
@@ -27,6 +29,7 @@ from features.platform_params import (
 )
 from features.row import parse_nan_reasons
 from features.table import MONTH_COLUMN, TRIP_FEATURES_COLUMNS, empty_rows, rows_frame
+from tracktrue.errors import UserError
 from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
@@ -66,12 +69,27 @@ class FeaturesSummary:
         return "\n".join(lines)
 
 
-def run_features(store: Store, rebuild: bool = False, progress: bool = False, workers: int = 1) -> FeaturesSummary:
+ENGINES: tuple[str, ...] = ("local", "dask")
+
+
+def run_features(store: Store, rebuild: bool = False, progress: bool = False, workers: int = 1,
+                 engine: str = "local", scheduler: str | None = None,
+                 samples_url: str | None = None) -> FeaturesSummary:
     """Compute features for trips without them (all trips with ``rebuild``) and publish.
 
-    ``workers`` > 1 spreads the sample files over that many local processes.
+    ``engine`` "local" runs in this process, or over ``workers`` local
+    processes; "dask" runs one task per sample file on the Dask cluster at
+    ``scheduler`` (an address such as tcp://host:8786), or on a LocalCluster
+    sized to this machine without one. ``samples_url`` is where the tasks
+    read the sample files: the store root as the workers see it, a path or an
+    fsspec URL (file://, s3://, …); default the store's own folder. The
+    catalog tables are read and the results published here, in ``store``.
     Raises tracktrue.store.TableMissing when ingest has not published "trips".
     """
+    if engine not in ENGINES:
+        raise UserError(f"unknown engine {engine!r}: choose one of {', '.join(ENGINES)}")
+    if scheduler and engine != "dask":
+        raise UserError("--scheduler is an option of --engine dask")
     trips = store.read_table("trips")
     vehicles = store.read_table("vehicles") if store.has_table("vehicles") else pd.DataFrame(columns=["vehicle_id"])
     summary = FeaturesSummary(n_trips=len(trips))
@@ -87,14 +105,15 @@ def run_features(store: Store, rebuild: bool = False, progress: bool = False, wo
         # Platforms lacking steering parameters: a first pass gives the trips'
         # steering-fit sums, the estimate fills the spec, then those trips are redone.
         specs = platform_specs(vehicles, keep) if needs else platform_specs(vehicles, empty_rows())
-        engine = functools.partial(run_in_pool, workers=workers)
-        new = _compute(engine, store, todo, registry, specs, summary, progress)
-        if needs:
-            specs = platform_specs(vehicles, pd.concat([keep, new], ignore_index=True))
-            redo = todo[todo["vehicle_id"].map(lambda v: registry.get(v, {}).get("platform") in needs)]
-            if len(redo):
-                redone = _compute(engine, store, redo, registry, specs, FeaturesSummary(), progress)
-                new = pd.concat([new[~new["trip_id"].isin(redone["trip_id"])], redone], ignore_index=True)
+        root = samples_url or str(store.root)
+        with _engine(engine, workers, scheduler, trips["start_time"].dtype) as run_files:
+            new = _compute(run_files, root, todo, registry, specs, summary, progress)
+            if needs:
+                specs = platform_specs(vehicles, pd.concat([keep, new], ignore_index=True))
+                redo = todo[todo["vehicle_id"].map(lambda v: registry.get(v, {}).get("platform") in needs)]
+                if len(redo):
+                    redone = _compute(run_files, root, redo, registry, specs, FeaturesSummary(), progress)
+                    new = pd.concat([new[~new["trip_id"].isin(redone["trip_id"])], redone], ignore_index=True)
         summary.n_computed = len(new)
         summary.nan_reasons = _count_reasons(new)
         summary.estimated = specs[specs["estimated"]].to_dict("records")
@@ -117,19 +136,34 @@ def _previous_rows(store: Store, rebuild: bool) -> pd.DataFrame:
     return rows
 
 
-def _compute(engine, store, todo, registry, specs, summary, progress) -> pd.DataFrame:
+@contextlib.contextmanager
+def _engine(name: str, workers: int, scheduler: str | None, time_dtype) -> Iterator:
+    """The function that runs file tasks (features.engines), open for the whole run."""
+    if name == "local":
+        yield functools.partial(run_in_pool, workers=workers)
+        return
+    from features.dask_engine import DaskEngine
+
+    dask_engine = DaskEngine(scheduler, time_dtype)
+    try:
+        yield dask_engine
+    finally:
+        dask_engine.close()
+
+
+def _compute(engine, root: str, todo, registry, specs, summary, progress) -> pd.DataFrame:
     """Feature rows for ``todo`` trips, one ``engine`` task per sample file (features.engines)."""
     jobs = _file_jobs(todo, registry, specs)
     sizes = {sample_file: len(tasks) for sample_file, tasks in jobs}
     rows = []
     bar = tqdm(total=len(todo), desc="features", unit="trip", disable=not progress)
-    for sample_file, result in engine(store.root, jobs):
+    for sample_file, result in engine(root, jobs):
         if result.problem is not None:
             summary.unreadable[sample_file] = result.problem
         rows.extend(result.rows)
         bar.update(sizes[sample_file])
     bar.close()
-    return rows_frame(rows)
+    return rows_frame(rows, todo["start_time"].dtype)
 
 
 def _file_jobs(todo: pd.DataFrame, registry: dict, specs: pd.DataFrame) -> list[tuple[str, list[TripTask]]]:

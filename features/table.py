@@ -28,11 +28,10 @@ EMPTY_TIME_DTYPE = "datetime64[us, UTC]"
 def rows_frame(rows: Sequence[dict], time_dtype: object = EMPTY_TIME_DTYPE) -> pd.DataFrame:
     """trip_features rows (ID_COLUMNS plus extract_trip_features' row) as the table, start_month added.
 
-    ``time_dtype`` is start_time's dtype when there are no rows to take it from.
+    ``time_dtype``: start_time's dtype, the trips table's (every engine gives the same frame).
     """
     frame = pd.DataFrame(list(rows), columns=list(TRIP_FEATURES_COLUMNS[:-1]))
-    frame["start_time"] = pd.to_datetime(frame["start_time"], utc=True) if len(frame) else \
-        frame["start_time"].astype(time_dtype)
+    frame["start_time"] = pd.to_datetime(frame["start_time"], utc=True).astype(time_dtype)
     frame[MONTH_COLUMN] = frame["start_time"].dt.strftime("%Y-%m")
     return frame.astype(DTYPES)
 

@@ -16,6 +16,8 @@ import logging
 import os
 import shutil
 import time
+import urllib.parse
+import urllib.request
 import uuid
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -24,6 +26,8 @@ from pathlib import Path
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
+
+from tracktrue.errors import UserError
 
 log = logging.getLogger(__name__)
 
@@ -42,10 +46,18 @@ class TableMissing(LookupError):
 
 
 def resolve_store_root(arg: str | os.PathLike | None = None) -> Path:
-    """``--store`` wins, then ``$TRACKTRUE_STORE``, then ``./tracktrue-store``."""
-    if arg:
-        return Path(arg)
-    return Path(os.environ.get(STORE_ENV) or DEFAULT_STORE)
+    """``--store`` wins, then ``$TRACKTRUE_STORE``, then ``./tracktrue-store``.
+
+    A ``file://`` URL names a local folder. Other URLs are refused: the
+    catalog and the atomic publish need a local or mounted file system.
+    """
+    text = os.fspath(arg) if arg else os.environ.get(STORE_ENV) or DEFAULT_STORE
+    if isinstance(text, str) and "://" in text:
+        parsed = urllib.parse.urlparse(text)
+        if parsed.scheme != "file" or parsed.netloc not in ("", "localhost"):
+            raise UserError(f"store {text!r}: only local folders and file:// URLs can hold a store")
+        return Path(urllib.request.url2pathname(parsed.path))
+    return Path(text)
 
 
 def atomic_write_bytes(path: Path, data: bytes) -> None:
