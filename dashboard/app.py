@@ -1,6 +1,9 @@
-"""Entry script that ``streamlit run`` serves: the page list, nothing else."""
+"""Entry script that ``streamlit run`` serves: the page list and what every page shows (staleness)."""
 
 import streamlit as st
+
+from dashboard.common import current_store
+from dashboard.freshness import staleness_banner
 
 st.set_page_config(page_title="tracktrue", page_icon=":material/tire_repair:", layout="wide")
 
@@ -12,4 +15,6 @@ PAGES = [
     st.Page("views/intake.py", title="Log intake", icon=":material/inbox:", url_path="intake"),
 ]
 
-st.navigation(PAGES, position="sidebar").run()
+page = st.navigation(PAGES, position="sidebar")
+staleness_banner(current_store())
+page.run()

@@ -26,9 +26,10 @@ def demo_fleet_dir(store: Store) -> Path:
 
 
 def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, progress: bool) -> int:
-    """synth → ingest → features → score → rank, printing what each step did."""
+    """synth → ingest (logs, registry, service history) → features → score → rank, printing each step."""
     from features import run_features
     from ingest import run_ingest
+    from ingest.service_events import import_service_events
     from models import evaluate, format_ranking, ranking_table, run_scoring
     from synthetic_fleet import DEMO_DAYS, DEMO_VEHICLES, generate_fleet
 
@@ -47,9 +48,10 @@ def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, 
         marker.write_text(json.dumps(params))  # written last: a killed run regenerates
         print(_indent(summary.describe()))
 
-    _step(2, "ingest the CSV logs")
+    _step(2, "ingest the CSV logs and the service history")
     ingest_summary = run_ingest([fleet_dir / "logs"], store, vehicles_csv=fleet_dir / "vehicles.csv", progress=progress)
     print(_indent(ingest_summary.describe()))
+    print(_indent(import_service_events(fleet_dir / "service_history.csv", store).describe()))
 
     _step(3, "compute per-trip features")
     print(_indent(run_features(store, progress=progress).describe()))

@@ -7,6 +7,7 @@ import streamlit as st
 from dashboard import charts, workshop
 from dashboard.common import PICKED_VEHICLE, current_store, table_or_note
 from dashboard.outcomes import read_outcomes
+from dashboard.service_form import service_event_section
 from dashboard.tables import Missing, has_columns, query, trip_samples
 from dashboard.traces import drilldown_frames
 from dashboard.wording import OUTCOME_LABELS, STATUS_LABELS, component_label, feature_unit
@@ -64,6 +65,7 @@ with st.container(border=True):
         st.dataframe(pd.DataFrame({"date": mine["date"].dt.date, "outcome": mine["outcome"].map(OUTCOME_LABELS),
                                    "component": mine["component"].map(component_label), "note": mine["note"]}),
                      hide_index=True, width="stretch", key="vehicle_outcomes")
+    service_event_section(store, vehicle)
 
 # ---- lamp and trouble-code events from the per-trip tables -------------------
 event_columns = {t: sorted(c for c in has_columns(store, t) if c.startswith(("lamp", "dtc")))
