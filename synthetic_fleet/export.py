@@ -182,7 +182,10 @@ def _text_words(texts: list[str]) -> np.ndarray:
 @functools.lru_cache(maxsize=None)
 def _clock_words() -> np.ndarray:
     """"HH:MM:SS" for every second of a day."""
-    return _text_words([f"{s // 3600:02d}:{s // 60 % 60:02d}:{s % 60:02d}" for s in range(86400)])
+    s = np.arange(86400)
+    colon = np.full((86400, 1), ord(":"), np.uint8)
+    chars = np.hstack([_digits(s // 3600, 2), colon, _digits(s // 60 % 60, 2), colon, _digits(s % 60, 2)])
+    return chars.view(np.uint64)[:, 0]
 
 
 @functools.lru_cache(maxsize=None)
@@ -215,7 +218,11 @@ def _seconds_cells(time_ms: np.ndarray, point: str, sep: bytes) -> np.ndarray:
 
 @functools.lru_cache(maxsize=None)
 def _whole_seconds_words() -> np.ndarray:
-    return _text_words([str(s) for s in range(86400)])
+    """"0" to "86399", one NUL-padded word each."""
+    cells = np.zeros((86400, 8), np.uint8)
+    chars = _fixed_chars(np.arange(86400), 0, ".")
+    cells[:, :chars.shape[1]] = chars
+    return cells.view(np.uint64)[:, 0]
 
 
 def _cell_text(cells: np.ndarray) -> pa.Array:

@@ -35,7 +35,7 @@ from synthetic_fleet.logger import LOGGERS, LoggerProfile
 from synthetic_fleet.platforms import PLATFORMS, Platform, platform
 from synthetic_fleet.scenario import DEPOTS, FLEET_NAME, Depot, synthetic_vin, vehicle_id
 from synthetic_fleet.sensors import SensorHealth, TripCondition
-from synthetic_fleet.trip import NEW_TYRE_RADIUS_FRAC, PARKING_SLOPE, SPARE_RADIUS_FRAC, simulate_trip
+from synthetic_fleet.trip import NEW_TYRE_RADIUS_FRAC, PARKING_SLOPE, SPARE_RADIUS_FRAC, simulate_trips
 from tracktrue.errors import UserError
 from tracktrue.schema import POSITIONS
 
@@ -348,21 +348,48 @@ def _write_tables(out: Path, plan: FleetPlan) -> None:
 
 def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: float,
                    analog: bool) -> tuple[int, int, int]:
-    """(samples, bytes, files) of one vehicle's trips; a unit of work for a worker process."""
+    """(samples, bytes, files) of one vehicle's trips; a unit of work for a worker process.
+
+    The trips go through the simulation in groups of about _GROUP_SAMPLES
+    samples (the arrays of a group stay near the processor's cache) and
+    through the writer in one call.
+    """
     if not trips:
         return 0, 0, 0
     v = trips[0].vehicle
-    sims = [simulate_trip(v.spec, v.health, t.condition, vehicle_id=v.vehicle_id, start=t.start, drive=t.drive,
-                          duration_s=t.duration_s, fleet_rate_hz=fleet_rate_hz, logger=v.logger,
-                          rng=np.random.default_rng([seed, v.index, 2, t.number])) for t in trips]
     folder = out / "logs" / v.vehicle_id
-    sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in trips],
-                            v.style, vehicle_id=v.vehicle_id, vin=v.vin,
-                            starts_ms=[t.start.value // 1_000_000 for t in trips], lengths=[s.n_samples for s in sims],
-                            time_ms=np.concatenate([s.time_ms for s in sims]),
-                            columns={k: np.concatenate([s.columns[k] for s in sims]) for k in sims[0].columns},
-                            polled=v.logger.name == "polled", analog=analog)
-    return sum(s.n_samples for s in sims), sum(sizes), len(trips)
+    n_samples = n_bytes = 0
+    for group in _groups(trips, fleet_rate_hz):
+        sims = simulate_trips(v.spec, v.health, [t.condition for t in group], vehicle_id=v.vehicle_id,
+                              starts=[t.start for t in group], drives=[t.drive for t in group],
+                              durations_s=[t.duration_s for t in group], fleet_rate_hz=fleet_rate_hz,
+                              logger=v.logger, rngs=[np.random.default_rng([seed, v.index, 2, t.number]) for t in group])
+        sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in group],
+                                v.style, vehicle_id=v.vehicle_id, vin=v.vin,
+                                starts_ms=[t.start.value // 1_000_000 for t in group], lengths=sims.lengths,
+                                time_ms=sims.time_ms, columns=sims.columns, polled=v.logger.name == "polled",
+                                analog=analog)
+        n_samples += sims.n_samples
+        n_bytes += sum(sizes)
+    return n_samples, n_bytes, len(trips)
+
+
+#: Samples simulated in one pass (a group of whole trips).
+_GROUP_SAMPLES = 60_000
+
+
+def _groups(trips: list[TripPlan], fleet_rate_hz: float) -> list[list[TripPlan]]:
+    """Consecutive trips in groups of about _GROUP_SAMPLES samples (by planned duration; at least one trip)."""
+    groups: list[list[TripPlan]] = [[]]
+    size = 0.0
+    for t in trips:
+        expected = t.duration_s * fleet_rate_hz
+        if groups[-1] and size + expected > _GROUP_SAMPLES:
+            groups.append([])
+            size = 0.0
+        groups[-1].append(t)
+        size += expected
+    return groups
 
 
 def _default_workers(plan: FleetPlan, rate_hz: float) -> int:

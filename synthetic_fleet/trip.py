@@ -1,7 +1,7 @@
 """One simulated trip, end to end: drive cycle → body motion → sensors → monitor → logger.
 
-``simulate_trip`` is the single code path behind both the in-memory API
-(``trip_samples``) and the fleet's CSV exports.
+``simulate_trips`` is the single code path behind both the in-memory API
+(``trip_samples``, one trip) and the fleet's CSV exports (a vehicle's trips in one pass).
 """
 
 from __future__ import annotations
@@ -12,12 +12,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pandas as pd
 
-from synthetic_fleet.drive import drive_trace
+from synthetic_fleet.drive import drive_traces
 from synthetic_fleet.faults import LAMP_SEVERITY, check_confounders, parse_fault
-from synthetic_fleet.logger import LOGGERS, LoggerProfile, apply_logger, logger_rate_hz
+from synthetic_fleet.logger import LOGGERS, LoggerProfile, apply_logger_trips, logger_rate_hz
 from synthetic_fleet.platforms import Platform, platform
 from synthetic_fleet.scenario import DEPOTS, synthetic_vin
-from synthetic_fleet.sensors import SensorHealth, TripCondition, measure
+from synthetic_fleet.sensors import SensorHealth, TripCondition, measure_trips
 from tracktrue.ids import trip_id
 from tracktrue.schema import POSITIONS, SAMPLE_COLUMNS
 
@@ -56,27 +56,70 @@ class SimulatedTrip:
         return frame[list(SAMPLE_COLUMNS)]
 
 
+@dataclass(frozen=True)
+class SimulatedTrips:
+    """Several trips of one vehicle, their logged rows one after the other (``lengths`` rows each)."""
+
+    vehicle_id: str
+    trip_ids: list[str]
+    starts: list[pd.Timestamp]
+    lengths: np.ndarray
+    time_ms: np.ndarray  # from each trip's start
+    columns: dict[str, np.ndarray]
+    rate_hz: float
+
+    @property
+    def n_samples(self) -> int:
+        return len(self.time_ms)
+
+    def trip(self, k: int) -> SimulatedTrip:
+        rows = slice(int(self.lengths[:k].sum()), int(self.lengths[:k + 1].sum()))
+        return SimulatedTrip(self.vehicle_id, self.trip_ids[k], self.starts[k], self.time_ms[rows],
+                             {name: v[rows] for name, v in self.columns.items()}, self.rate_hz)
+
+
+def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCondition], *, vehicle_id: str,
+                   starts: Sequence[pd.Timestamp], drives: Sequence[str], durations_s: Sequence[float],
+                   fleet_rate_hz: float, logger: LoggerProfile,
+                   rngs: Sequence[np.random.Generator]) -> SimulatedTrips:
+    """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log several trips of one
+    vehicle in one pass; each trip draws on its own random stream ``rngs[k]`` only."""
+    rate = logger_rate_hz(logger, fleet_rate_hz)
+    streams = [rng.spawn(3) for rng in rngs]  # drive, sensors, logger: a fault changes nothing but its own signals
+    drive_rngs, sensor_rngs, logger_rngs = ([s[i] for s in streams] for i in range(3))
+    trace = drive_traces(list(drives), list(durations_s), rate, drive_rngs, [c.park_grade_start for c in conds],
+                         [c.park_grade_end for c in conds])
+    trips = trace.trips
+    signals = measure_trips(trace, spec, health, list(conds), sensor_rngs)
+    faults = [parse_fault(c.fault) if c.fault else None for c in conds]
+    lit = [f.lamps if f else (False, False) for f in faults]
+    lamp = trace.t_s >= trips.spread([np.inf if c.lamp_from_s is None else c.lamp_from_s for c in conds])
+    signals["lamp_abs"] = lamp & trips.spread([abs_lit for abs_lit, _ in lit])
+    signals["lamp_esc"] = lamp & trips.spread([esc_lit for _, esc_lit in lit])
+    dtc = np.full(trips.total, None, dtype=object)
+    for fault, (abs_lit, esc_lit), a, b in zip(faults, lit, trips.starts, trips.ends):
+        if fault is not None and (abs_lit or esc_lit):
+            dtc[a:b][lamp[a:b]] = fault.trouble_code
+    signals["dtc"] = dtc
+    time_ms, logged, lengths = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs)
+    starts = [_utc(start) for start in starts]
+    firsts = np.cumsum(lengths) - lengths
+    ids = [trip_id(vehicle_id, start + pd.Timedelta(milliseconds=int(time_ms[first])))
+           for start, first in zip(starts, firsts)]
+    return SimulatedTrips(vehicle_id, ids, starts, lengths, time_ms, logged, rate)
+
+
+def _utc(start) -> pd.Timestamp:
+    start = pd.Timestamp(start)
+    return start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
+
+
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
                   start: pd.Timestamp, drive: str, duration_s: float, fleet_rate_hz: float,
                   logger: LoggerProfile, rng: np.random.Generator) -> SimulatedTrip:
-    """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log one trip."""
-    rate = logger_rate_hz(logger, fleet_rate_hz)
-    drive_rng, sensor_rng, logger_rng = rng.spawn(3)  # a fault changes nothing but its own signals
-    trace = drive_trace(drive, duration_s, rate, drive_rng, cond.park_grade_start, cond.park_grade_end)
-    signals = measure(trace, spec, health, cond, sensor_rng)
-    lamp = (np.zeros(len(trace.t_s), dtype=bool) if cond.lamp_from_s is None
-            else trace.t_s >= cond.lamp_from_s)
-    fault = parse_fault(cond.fault) if cond.fault else None
-    abs_lit, esc_lit = fault.lamps if fault else (False, False)
-    signals["lamp_abs"] = lamp & abs_lit
-    signals["lamp_esc"] = lamp & esc_lit
-    code = fault.trouble_code if fault and (abs_lit or esc_lit) else None
-    signals["dtc"] = np.where(lamp & (code is not None), code, None).astype(object)
-    time_ms, logged = apply_logger(signals, trace.t_s, rate, logger, logger_rng)
-    start = pd.Timestamp(start)
-    start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
-    first = start + pd.Timedelta(milliseconds=int(time_ms[0]))
-    return SimulatedTrip(vehicle_id, trip_id(vehicle_id, first), start, time_ms, logged, rate)
+    """One trip (simulate_trips of one trip)."""
+    return simulate_trips(spec, health, [cond], vehicle_id=vehicle_id, starts=[start], drives=[drive],
+                          durations_s=[duration_s], fleet_rate_hz=fleet_rate_hz, logger=logger, rngs=[rng]).trip(0)
 
 
 def confounded_condition(base: TripCondition, confounders: Sequence[str], rng: np.random.Generator) -> TripCondition:

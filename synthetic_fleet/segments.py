@@ -1,0 +1,109 @@
+"""Several trips' samples one after the other, and the per-trip array operations on them.
+
+A vehicle's trips are simulated in one pass: every signal is one array of all
+the trips' samples, so a trip costs no more array calls than a sample's worth
+of work. Smoothing, derivatives and running sums must not reach across a
+trip's ends; these helpers treat each trip (segment) as if it stood alone.
+Sums run over the whole array, so a trip's values agree with its stand-alone
+values to rounding (about 1e-16 of the running sum), and are the same
+for the same trips whatever else runs.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass(frozen=True, eq=False)
+class Segments:
+    """Consecutive segments of ``lengths`` samples each."""
+
+    lengths: np.ndarray
+    #: Index arrays of the smoothing and interpolation already asked for (several signals share them).
+    _plans: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def of(cls, lengths) -> "Segments":
+        return cls(np.asarray(lengths, dtype=np.int64))
+
+    @functools.cached_property
+    def starts(self) -> np.ndarray:
+        return np.cumsum(self.lengths) - self.lengths
+
+    @functools.cached_property
+    def ends(self) -> np.ndarray:
+        return np.cumsum(self.lengths)
+
+    @property
+    def total(self) -> int:
+        return int(self.lengths.sum())
+
+    @functools.cached_property
+    def owner(self) -> np.ndarray:
+        """The segment of each sample."""
+        return np.repeat(np.arange(len(self.lengths)), self.lengths)
+
+    @functools.cached_property
+    def local(self) -> np.ndarray:
+        """Each sample's index within its segment."""
+        return np.arange(self.total) - self.starts[self.owner]
+
+    def spread(self, per_segment) -> np.ndarray:
+        """A value per segment, repeated over its samples."""
+        return np.repeat(np.asarray(per_segment), self.lengths, axis=-1)
+
+    def sums(self, x: np.ndarray) -> np.ndarray:
+        """The sum of ``x`` over each segment (0 for an empty one)."""
+        c = np.concatenate([[0.0], np.cumsum(x)])
+        return c[self.ends] - c[self.starts]
+
+    def cumsum(self, x: np.ndarray) -> np.ndarray:
+        """Running sum of ``x`` restarting at each segment."""
+        c = np.cumsum(x)
+        before = np.concatenate([[0.0], c])[self.starts]
+        return c - self.spread(before)
+
+    def gradient(self, x: np.ndarray, dt: float) -> np.ndarray:
+        """np.gradient within each segment (central inside, one-sided at its ends; 0 for one sample)."""
+        g = np.empty_like(x)
+        g[1:-1] = (x[2:] - x[:-2]) / (2.0 * dt)
+        long = self.lengths > 1
+        first, last = self.starts[long], self.ends[long] - 1
+        g[first] = (x[first + 1] - x[first]) / dt
+        g[last] = (x[last] - x[last - 1]) / dt
+        g[self.starts[~long]] = 0.0
+        return g
+
+    def boxcar(self, x: np.ndarray, width: int) -> np.ndarray:
+        """Centred moving average over ``width`` samples within each segment, its edge values held."""
+        if width <= 1 or self.total == 0:
+            return x
+        key = ("boxcar", width)
+        if key not in self._plans:
+            left = width // 2 + 1  # samples held before a segment (and width - left after it)
+            padded = Segments.of(self.lengths + width)
+            source = self.starts[padded.owner] + np.clip(padded.local - left, 0, self.lengths[padded.owner] - 1)
+            self._plans[key] = source, padded.starts, padded.starts[self.owner] + self.local
+        source, zeroed, at = self._plans[key]
+        values = x[source]
+        values[zeroed] = 0.0  # so that each window's sum is a difference of running sums
+        c = np.cumsum(values)
+        return (c[at + width] - c[at]) / width
+
+    def coarse(self, step: int) -> "Segments":
+        """Every ``step``-th sample of each segment (its first, then every step after)."""
+        return Segments.of(-(-self.lengths // step))
+
+    def upsample(self, coarse_values: np.ndarray, coarse: "Segments", step: int) -> np.ndarray:
+        """Linear interpolation of values given at every ``step``-th sample of each segment (``coarse``
+        segments, at least as many values as coarse points) onto all samples; the last value is held."""
+        key = ("upsample", id(coarse), step)
+        if key not in self._plans:
+            i, frac = np.divmod(self.local, step)
+            at = coarse.starts[self.owner] + i
+            self._plans[key] = coarse, at, np.minimum(at + 1, coarse.ends[self.owner] - 1), frac / step
+        _, at, following, frac = self._plans[key]
+        return coarse_values[at] * (1.0 - frac) + coarse_values[following] * frac
