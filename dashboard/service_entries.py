@@ -26,20 +26,27 @@ CREATE TABLE IF NOT EXISTS service_entries (
     component TEXT NOT NULL DEFAULT '',
     note TEXT NOT NULL DEFAULT '',
     recorded_at TEXT NOT NULL
-)
+);
+CREATE UNIQUE INDEX IF NOT EXISTS one_entry_per_event ON service_entries (vehicle_id, date, kind, component);
 """
 
 
 def add_service_entry(store: Store, vehicle_id: str, date: dt.date, kind: str, component: str = "",
                       note: str = "") -> None:
-    """Record one service event for the next update run to publish."""
+    """Record one service event for the next update run to publish.
+
+    Entering the same event (vehicle, date, kind, component) again replaces
+    its note, as a re-import of a CSV does, so the fold never meets a duplicate.
+    """
     if kind not in SERVICE_EVENT_KINDS:
         raise ValueError(f"kind must be one of {SERVICE_EVENT_KINDS}, got {kind!r}")
     now = dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds")
     with connect(store) as con:
-        con.execute(_SCHEMA)
+        con.executescript(_SCHEMA)
         con.execute("INSERT INTO service_entries (vehicle_id, date, kind, component, note, recorded_at) "
-                    "VALUES (?, ?, ?, ?, ?, ?)", (vehicle_id, date.isoformat(), kind, component, note.strip(), now))
+                    "VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT (vehicle_id, date, kind, component) "
+                    "DO UPDATE SET note = excluded.note, recorded_at = excluded.recorded_at",
+                    (vehicle_id, date.isoformat(), kind, component, note.strip(), now))
 
 
 def read_service_entries(store: Store) -> pd.DataFrame:

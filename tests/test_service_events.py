@@ -183,3 +183,12 @@ def test_update_rescores_after_a_dashboard_entry_and_models_see_it(tmp_path):
     assert read_last_success(store)["scoring_inputs"] == third.fingerprint
     assert json.loads((store.runs_dir / "last_success.json").read_text())["counts"]["trips_scored"] == 0
     assert os.path.getsize(store.runs_dir / "update.log") > 0
+
+
+def test_entering_the_same_event_twice_in_the_dashboard_keeps_one_entry_with_the_newest_note(tmp_path):
+    store = Store.open(tmp_path / "store")
+    add_service_entry(store, "VAN-01", dt.date(2026, 5, 2), "calibration", "steering_angle_sensor", "first")
+    add_service_entry(store, "VAN-01", dt.date(2026, 5, 2), "calibration", "steering_angle_sensor", "second")
+    assert read_service_entries(store)["note"].tolist() == ["second"]
+    with pytest.raises(ValueError, match="kind must be one of"):
+        add_service_entry(store, "VAN-01", dt.date(2026, 5, 2), "polishing")
