@@ -30,10 +30,13 @@ def rows_frame(rows: Sequence[dict], time_dtype: object = EMPTY_TIME_DTYPE) -> p
 
     ``time_dtype``: start_time's dtype, the trips table's (every engine gives the same frame).
     """
+    if not rows:
+        return pd.DataFrame({c: pd.Series(dtype=time_dtype if c == "start_time" else DTYPES[c])
+                             for c in TRIP_FEATURES_COLUMNS})
     frame = pd.DataFrame(list(rows), columns=list(TRIP_FEATURES_COLUMNS[:-1]))
     frame["start_time"] = pd.to_datetime(frame["start_time"], utc=True).astype(time_dtype)
     frame[MONTH_COLUMN] = frame["start_time"].dt.strftime("%Y-%m")
-    return frame.astype(DTYPES)
+    return frame.astype({c: t for c, t in DTYPES.items() if frame[c].dtype != t})
 
 
 def empty_rows() -> pd.DataFrame:
