@@ -15,7 +15,8 @@ import multiprocessing as mp
 import os
 import shutil
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from contextlib import nullcontext
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -393,7 +394,8 @@ def _groups(trips: list[TripPlan], fleet_rate_hz: float) -> list[list[TripPlan]]
 
 
 def _default_workers(plan: FleetPlan, rate_hz: float) -> int:
-    """Two processes when the fleet is large enough to repay their start-up (~1 s), else one."""
+    """Two processes (this one and one started) when the fleet is large enough to repay a
+    process's start-up (~1 s of imports), else one."""
     expected = sum(t.duration_s for trips in plan.trips.values() for t in trips) * rate_hz
     return min(2, os.cpu_count() or 1) if expected > 1_500_000 else 1
 
@@ -403,7 +405,8 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
                    analog_accel: bool = False, workers: int | None = None) -> FleetSummary:
     """Simulate the fleet and write its CSV logs and tables under ``out``.
 
-    The files are byte-identical for a seed whatever ``workers`` is (each trip's
+    ``workers`` counts the processes that simulate, this one included. The
+    files are byte-identical for a seed whatever ``workers`` is (each trip's
     random stream depends on seed, vehicle and trip only). ``analog_accel`` adds
     the accelerometers' analog voltages as extra columns.
     """
@@ -414,20 +417,28 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
     plan = plan_fleet(n_vehicles, days, seed, start)
     _prepare_out(out)
     workers = workers or _default_workers(plan, rate_hz)
-    jobs = [plan.trips[v.vehicle_id] for v in plan.vehicles]
+    # Largest vehicles first, so that the last job to finish is a small one.
+    jobs = sorted((plan.trips[v.vehicle_id] for v in plan.vehicles), key=lambda trips: -sum(t.duration_s for t in trips))
     bar = tqdm(total=len(jobs), desc="synthesising vehicles", unit="vehicle", disable=not progress)
     results = []
-    if workers == 1:
-        for trips in jobs:
-            results.append(_write_vehicle(out, trips, seed, rate_hz, analog_accel))
-            bar.update()
-    else:
-        # spawn, not fork: Arrow's thread pools do not survive a fork safely.
-        with ProcessPoolExecutor(workers, mp_context=mp.get_context("spawn")) as pool:
-            futures = [pool.submit(_write_vehicle, out, trips, seed, rate_hz, analog_accel) for trips in jobs]
-            for future in as_completed(futures):
+    with ProcessPoolExecutor(workers - 1, mp_context=mp.get_context("spawn")) if workers > 1 else nullcontext() as pool:
+        # The calling process is one of the workers: it takes the smallest jobs from the back of
+        # the queue while the pool's processes (started with spawn, not fork: a fork does not copy
+        # the threads of numeric libraries' pools safely) start up and take the largest from the front.
+        in_flight = set()
+        while jobs or in_flight:
+            while pool is not None and jobs and len(in_flight) < 2 * (workers - 1):
+                in_flight.add(pool.submit(_write_vehicle, out, jobs.pop(0), seed, rate_hz, analog_accel))
+            if jobs:
+                results.append(_write_vehicle(out, jobs.pop(), seed, rate_hz, analog_accel))
+                bar.update()
+                done = {f for f in in_flight if f.done()}
+            else:
+                done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
+            for future in done:
                 results.append(future.result())
                 bar.update()
+            in_flight -= done
     bar.close()
     n_samples, n_bytes, n_files = (sum(r[i] for r in results) for i in range(3))
     _write_tables(out, plan)
