@@ -48,6 +48,8 @@ LAST_SUCCESS = "last_success.json"
 UPDATE_LOG = "update.log"
 EXIT_MISSING, EXIT_STAGE_FAILED = 4, 5
 DASHBOARD_SOURCE = "dashboard"
+#: Stages whose UserError means an earlier stage gave them nothing to work on (exit 4).
+NEEDS_EARLIER_STAGES = frozenset({"features", "score"})
 #: Tables whose content decides whether scoring has anything new to do.
 SCORING_INPUTS = ("trip_features", "vehicles", "service_events")
 
@@ -162,13 +164,13 @@ def _stage(name: str, runlog: logging.Logger, log_path: Path, fn: Callable, *arg
     """Run one stage; turn what it raises into the documented exit codes."""
     try:
         return fn(*args, **kwargs)
-    except (LockHeld, KeyboardInterrupt):
+    except LockHeld:
         raise
     except TableMissing as exc:
         raise UserError(f"stage {name}: {exc}", exit_code=EXIT_MISSING) from None
     except UserError as exc:
-        if name == "ingest" or exc.exit_code != 2:
-            raise
+        if name not in NEEDS_EARLIER_STAGES or exc.exit_code != 2:
+            raise  # bad input to ingest is a usage error, as for `tracktrue ingest`
         raise UserError(f"stage {name}: {exc}", exit_code=EXIT_MISSING) from None
     except Exception as exc:
         runlog.exception("stage %s failed", name)
