@@ -194,16 +194,18 @@ def _milli_words(point: str, suffix: str, sep: bytes) -> np.ndarray:
     return _text_words([f"{point}{m:03d}{suffix}{sep.decode()}" for m in range(1000)])
 
 
-def _iso_utc_words(epoch_ms: np.ndarray, sep: bytes) -> np.ndarray:
-    """ISO-8601 UTC timestamps with milliseconds and Z (2026-03-02T07:14:00.123Z), then ``sep``; words (n, 4)."""
+def _iso_utc_words(epoch_ms: np.ndarray, sep: bytes, prefix: bytes = b"") -> np.ndarray:
+    """``prefix``, then ISO-8601 UTC timestamps with milliseconds and Z (2026-03-02T07:14:00.123Z), then
+    ``sep``; words (n, k). The prefix (the cells before, the same on every row) shares the date's words."""
     day, rem = np.divmod(epoch_ms, 86_400_000)
     second, milli = np.divmod(rem, 1000)
     first = int(day.min())
     dates = np.datetime_as_string(np.arange(first, int(day.max()) + 1).astype("datetime64[D]"))
-    out = np.empty((len(epoch_ms), 4), np.uint64)
-    out[:, :2] = _words([f"{d}T".encode("ascii") for d in dates])[day - first]
-    out[:, 2] = _clock_words().take(second)
-    out[:, 3] = _milli_words(".", "Z", sep).take(milli)
+    date_words = _words([prefix + f"{d}T".encode("ascii") for d in dates])
+    out = np.empty((len(epoch_ms), date_words.shape[1] + 2), np.uint64)
+    out[:, :-2] = date_words[day - first]
+    out[:, -2] = _clock_words().take(second)
+    out[:, -1] = _milli_words(".", "Z", sep).take(milli)
     return out
 
 
@@ -283,8 +285,11 @@ def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, sta
             k = run
             continue
         if col.signal == "time":
-            pieces.append(_seconds_cells(time_ms, point, sep) if style.relative_time
-                          else _iso_utc_words(start_ms + time_ms, sep))
+            if style.relative_time:
+                pieces.append(_seconds_cells(time_ms, point, sep))
+            else:
+                prefix = pieces.pop() if pieces and isinstance(pieces[-1], bytes) else b""
+                pieces.append(_iso_utc_words(start_ms + time_ms, sep, prefix))
         elif col.signal == "vin":
             pieces.append(vin.encode("ascii") + sep)
         else:
