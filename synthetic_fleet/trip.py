@@ -61,7 +61,6 @@ class SimulatedTrips:
     """Several trips of one vehicle, their logged rows one after the other (``lengths`` rows each)."""
 
     vehicle_id: str
-    trip_ids: list[str]
     starts: list[pd.Timestamp]
     lengths: np.ndarray
     time_ms: np.ndarray  # from each trip's start
@@ -73,8 +72,12 @@ class SimulatedTrips:
         return len(self.time_ms)
 
     def trip(self, k: int) -> SimulatedTrip:
+        """Trip ``k`` alone, with its trip_id (from its first logged row's time)."""
         rows = slice(int(self.lengths[:k].sum()), int(self.lengths[:k + 1].sum()))
-        return SimulatedTrip(self.vehicle_id, self.trip_ids[k], self.starts[k], self.time_ms[rows],
+        start = pd.Timestamp(self.starts[k])
+        start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
+        first = start + pd.Timedelta(milliseconds=int(self.time_ms[rows.start]))
+        return SimulatedTrip(self.vehicle_id, trip_id(self.vehicle_id, first), start, self.time_ms[rows],
                              {name: v[rows] for name, v in self.columns.items()}, self.rate_hz)
 
 
@@ -102,16 +105,7 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
             dtc[a:b][lamp[a:b]] = fault.trouble_code
     signals["dtc"] = dtc
     time_ms, logged, lengths = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs)
-    starts = [_utc(start) for start in starts]
-    firsts = np.cumsum(lengths) - lengths
-    ids = [trip_id(vehicle_id, start + pd.Timedelta(milliseconds=int(time_ms[first])))
-           for start, first in zip(starts, firsts)]
-    return SimulatedTrips(vehicle_id, ids, starts, lengths, time_ms, logged, rate)
-
-
-def _utc(start) -> pd.Timestamp:
-    start = pd.Timestamp(start)
-    return start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
+    return SimulatedTrips(vehicle_id, list(starts), lengths, time_ms, logged, rate)
 
 
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
