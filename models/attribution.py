@@ -42,6 +42,17 @@ SUGGESTIONS: dict[str, str] = {
     "none": "No component stands out; keep watching.",
 }
 
+#: The residuals that involve each non-wheel sensor (the columns of Isermann's residual
+#: table). One residual alone cannot name its sensor — yaw-versus-steering is shared, and a
+#: level at rest is also the grade or bank the vehicle stood on — so a sensor alert on one
+#: of these components needs a second residual of the same row to agree.
+COMPONENT_RESIDUALS: dict[str, tuple[str, ...]] = {
+    "yaw_sensor": ("yaw", "yaw_vs_wheels", "steering_vs_yaw"),
+    "steering_angle_sensor": ("steering_vs_wheels", "steering_vs_yaw"),
+    "accel_long_sensor": ("accel_long", "accel_long_vs_wheels"),
+    "accel_lat_sensor": ("accel_lat", "accel_lat_vs_wheels"),
+}
+
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
 
 

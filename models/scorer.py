@@ -40,7 +40,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from models.attribution import choose_component, suggestion_for
+from models.attribution import COMPONENT_RESIDUALS, choose_component, suggestion_for
 from models.drift import required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
@@ -84,6 +84,7 @@ class FleetScorer:
         budget_vehicle_days: float = 1500.0,
         trips_per_day: float | None = None,
         alert_hold_trips: int = 5,
+        confirm_strength: float = 0.5,
         inspect_score_z: float = 8.0,
         watch_score_z: float = 4.0,
         signal_z: float = 4.0,
@@ -113,6 +114,7 @@ class FleetScorer:
         self.budget_vehicle_days = budget_vehicle_days
         self.trips_per_day = trips_per_day
         self.alert_hold_trips = alert_hold_trips
+        self.confirm_strength = confirm_strength
         self.inspect_score_z = inspect_score_z
         self.watch_score_z = watch_score_z
         self.signal_z = signal_z
@@ -315,8 +317,8 @@ class FleetScorer:
         strength = np.maximum(hi, lo) / self.cusum_h_
         kinds = np.array([_alarm_kind(c) for c in self.statistics_])
         ratio_strength = strength[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(df))
-        sensor_alarm = (alarm[:, kinds == "sensor"].any(axis=1)
-                        | (alarm[:, kinds == "vs_wheels"].any(axis=1) & (ratio_strength < 0.5)))
+        wheel_signal = np.array([c.startswith("wheel_signal_") for c in self.statistics_])
+        sensor_alarm = alarm[:, wheel_signal].any(axis=1) | self._corroborated(strength, ratio_strength < 0.5)
         peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
         wide["drift_alarm"] = alarm.any(axis=1)
@@ -324,7 +326,13 @@ class FleetScorer:
         wide["score_alert"] = score_alert
         # hold an alert for alert_hold_trips trips: a CUSUM hovering at h is one episode, not many
         wide["alert"] = self._held(wide["drift_alarm"] | peer_any | score_alert, vehicle_key)
-        wide["sensor_alert"] = self._held(sensor_alarm | peer_sensor | score_alert, vehicle_key)
+        # hysteresis: a sensor alert, once raised, stands while some sensor residual stays at
+        # confirm_strength·h or more (a CUSUM hovering about h is one episode, not several)
+        raised = sensor_alarm | peer_sensor | score_alert
+        sensor_stats = wheel_signal | np.isin(self.statistics_, [r for rs in COMPONENT_RESIDUALS.values() for r in rs])
+        gated = np.where((kinds == "vs_wheels")[None, :] & (ratio_strength >= 0.5)[:, None], 0.0, strength)
+        sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
+        wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
         wide["epoch_key"] = vehicle_key
         for j, s in enumerate(self.statistics_):
             wide[f"strength__{s}"] = np.maximum(hi[:, j], lo[:, j]) / self.cusum_h_
@@ -342,6 +350,28 @@ class FleetScorer:
         long["start_time"] = pd.to_datetime(long["start_time"], utc=True)
         long.attrs["per_trip"] = wide
         return long
+
+    def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray) -> np.ndarray:
+        """Per trip: does some non-wheel sensor have one residual past h (strength > 1) and a
+        second residual of its row (models.attribution.COMPONENT_RESIDUALS) at least
+        ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
+        agree (else the wheels explain them). A sensor with only one residual measured
+        needs only that one."""
+        col = {s: j for j, s in enumerate(self.statistics_)}
+        out = np.zeros(len(strength), dtype=bool)
+        for residuals in COMPONENT_RESIDUALS.values():
+            idx = [col[r] for r in residuals if r in col]
+            if not idx:
+                continue
+            st = strength[:, idx].copy()
+            vs = np.array(["_vs_wheels" in self.statistics_[j] for j in idx])
+            st[:, vs] = np.where(wheels_agree[:, None], st[:, vs], 0.0)
+            if len(idx) == 1:
+                out |= st[:, 0] > 1.0
+                continue
+            top2 = np.sort(st, axis=1)[:, -2:]
+            out |= (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
+        return out
 
     def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Fleet-relative alarms: the rolling median (last ``vehicle_trips`` trips) of an
@@ -552,6 +582,18 @@ def _cusum_by_group(u: pd.DataFrame, keys: np.ndarray, k: float) -> tuple[np.nda
     cube[codes, :, pos] = u.to_numpy(dtype=float)
     hi, lo = tabular_cusum(cube, k)
     return hi[codes, :, pos], lo[codes, :, pos]
+
+
+def _latched(raised: np.ndarray, sustained: np.ndarray, key: np.ndarray) -> np.ndarray:
+    """Set/reset latch per series: on from a ``raised`` trip for as long as ``sustained``
+    holds (raised implies sustained). Vectorised: within each run of sustained trips of
+    one series, the latch is the running maximum of ``raised``."""
+    sustained = np.asarray(sustained, dtype=bool) | np.asarray(raised, dtype=bool)
+    codes = pd.factorize(np.asarray(key))[0]
+    new_run = ~sustained | np.r_[True, codes[1:] != codes[:-1]]
+    run_id = np.cumsum(new_run)
+    on = pd.Series(np.asarray(raised, dtype=float)).groupby(run_id).cummax().to_numpy() > 0
+    return on & sustained
 
 
 def _run_start(ts: pd.DataFrame, column: str) -> dict:
