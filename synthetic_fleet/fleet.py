@@ -15,7 +15,7 @@ import multiprocessing as mp
 import os
 import shutil
 import time
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures import ProcessPoolExecutor
 from contextlib import nullcontext
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -422,23 +422,18 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
     bar = tqdm(total=len(jobs), desc="synthesising vehicles", unit="vehicle", disable=not progress)
     results = []
     with ProcessPoolExecutor(workers - 1, mp_context=mp.get_context("spawn")) if workers > 1 else nullcontext() as pool:
-        # The calling process is one of the workers: it takes the smallest jobs from the back of
-        # the queue while the pool's processes (started with spawn, not fork: a fork does not copy
-        # the threads of numeric libraries' pools safely) start up and take the largest from the front.
-        in_flight = set()
-        while jobs or in_flight:
-            while pool is not None and jobs and len(in_flight) < 2 * (workers - 1):
-                in_flight.add(pool.submit(_write_vehicle, out, jobs.pop(0), seed, rate_hz, analog_accel))
-            if jobs:
-                results.append(_write_vehicle(out, jobs.pop(), seed, rate_hz, analog_accel))
+        # The calling process is one of the workers. The pool's processes (started with spawn,
+        # not fork: a fork does not copy the threads of numeric libraries' pools safely) take
+        # jobs from the front of the queue, this process takes back the smallest from its end
+        # (a job not yet handed to a process can be cancelled), so the two meet in the middle.
+        futures = [pool.submit(_write_vehicle, out, trips, seed, rate_hz, analog_accel) for trips in jobs] if pool else []
+        for future in futures:
+            future.add_done_callback(lambda f: f.cancelled() or bar.update())
+        for k in reversed(range(len(jobs))):
+            if pool is None or futures[k].cancel():
+                results.append(_write_vehicle(out, jobs[k], seed, rate_hz, analog_accel))
                 bar.update()
-                done = {f for f in in_flight if f.done()}
-            else:
-                done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
-            for future in done:
-                results.append(future.result())
-                bar.update()
-            in_flight -= done
+        results += [future.result() for future in futures if not future.cancelled()]
     bar.close()
     n_samples, n_bytes, n_files = (sum(r[i] for r in results) for i in range(3))
     _write_tables(out, plan)
