@@ -5,7 +5,8 @@ REPEATS on a warm cluster, plus the first (cold) run, which includes the
 workers importing numpy/scipy/pyarrow; the speed-up over the local engine;
 and the Dask overhead per trip, (Dask with one worker − local) / trips: what
 scheduling, task transport and result collection cost on top of the same
-computation. Cluster start-up is printed separately. The machine is shared
+computation. Cluster start-up is printed separately. The clusters are the
+engine's own (features.dask_engine.local_cluster). The machine is shared
 by other jobs, so read the figures as upper bounds.
 
     .venv/bin/python benchmarks/bench_dask.py [--trips 48] [--duration 1200]
@@ -18,10 +19,9 @@ import tempfile
 import time
 from pathlib import Path
 
-import distributed
-
 from bench_features import build
 from features import run_features
+from features.dask_engine import local_cluster
 
 REPEATS = 3
 
@@ -50,8 +50,7 @@ def main() -> None:
         results = {"local": cold_and_warm(lambda: run_features(store, rebuild=True))}
         for n_workers in (1, 2):
             t0 = time.perf_counter()
-            with distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                                          dashboard_address=None) as cluster:
+            with local_cluster(n_workers) as cluster:
                 print(f"LocalCluster with {n_workers} worker(s) started in {time.perf_counter() - t0:.1f} s")
                 results[f"dask, {n_workers} worker(s)"] = cold_and_warm(
                     lambda: run_features(store, rebuild=True, engine="dask", scheduler=cluster.scheduler_address))

@@ -21,8 +21,9 @@ distributed = pytest.importorskip("distributed")
 @pytest.fixture(scope="module")
 def scheduler():
     """A LocalCluster of two worker processes, shared by the tests of this module."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                  dashboard_address=None) as cluster:
+    from features.dask_engine import local_cluster
+
+    with local_cluster(2) as cluster:
         yield cluster.scheduler_address
 
 
@@ -126,3 +127,15 @@ def test_scheduler_without_dask_engine_and_unknown_engines_are_usage_errors(tmp_
         run_features(store, scheduler="tcp://127.0.0.1:1")
     with pytest.raises(UserError, match="unknown engine"):
         run_features(store, engine="spark")
+
+
+def test_small_sample_files_are_grouped_whole_into_partitions():
+    from features.dask_engine import TRIPS_PER_PARTITION, group_files
+
+    jobs = [(f"part-{i}", list(range(10))) for i in range(400)]  # 4,000 trips in 10-trip files
+    groups = group_files(jobs, n_threads=2)
+    assert [f for g in groups for f, _ in g] == [f for f, _ in jobs]  # every file once, none split
+    sizes = [sum(len(t) for _, t in g) for g in groups]
+    assert all(TRIPS_PER_PARTITION <= s < TRIPS_PER_PARTITION + 10 for s in sizes[:-1])
+    few = group_files(jobs[:4], n_threads=2)  # a small run still feeds both workers
+    assert len(few) == 4
