@@ -63,7 +63,7 @@ class DaskEngine:
             yield from split_partition(future.result())
 
     def close(self) -> None:
-        for thing in (self._client, self._cluster):
+        for thing in (self._cluster, self._client):
             if thing is not None:
                 thing.close()
         self._client = self._cluster = None
@@ -167,4 +167,6 @@ def _import_dask():
     except ImportError:
         raise UserError("--engine dask needs Dask: pip install 'tracktrue[dask]' "
                         "(dask[dataframe,distributed]) into this environment") from None
+    # distributed sets its loggers to INFO when imported; follow the application's verbosity instead
+    logging.getLogger("distributed").setLevel(logging.getLogger().getEffectiveLevel())
     return dd, distributed
