@@ -10,7 +10,9 @@ residuals compare a sensor *with the wheels*. So:
    ring (signal faults show as jitter and dropouts; common practice).
 2. Else a wheel whose speed ratio is abnormal → that wheel's tyre: a steady
    ratio error without jitter or dropouts is a rolling-radius change
-   (DESIGN.md, "Tyre versus sensor").
+   (DESIGN.md, "Tyre versus sensor") — unless a non-wheel sensor's own residuals,
+   which no tyre can move (a level at rest, yaw against steering), changed together:
+   a tyre changed on a vehicle whose yaw sensor fails does not hide the yaw sensor.
 3. Else the non-wheel sources, where a "versus wheels" residual counts only
    when no wheel is abnormal (otherwise the wheel explains it), and the
    steering-versus-yaw residual goes to whichever of the two the other
@@ -42,15 +44,16 @@ SUGGESTIONS: dict[str, str] = {
     "none": "No component stands out; keep watching.",
 }
 
-#: The residuals that involve each non-wheel sensor (the columns of Isermann's residual
-#: table). One residual alone cannot name its sensor — yaw-versus-steering is shared, and a
-#: level at rest is also the grade or bank the vehicle stood on — so a sensor alert on one
-#: of these components needs a second residual of the same row to agree.
-COMPONENT_RESIDUALS: dict[str, tuple[str, ...]] = {
-    "yaw_sensor": ("yaw", "yaw_vs_wheels", "steering_vs_yaw"),
-    "steering_angle_sensor": ("steering_vs_wheels", "steering_vs_yaw"),
-    "accel_long_sensor": ("accel_long", "accel_long_vs_wheels"),
-    "accel_lat_sensor": ("accel_lat", "accel_lat_vs_wheels"),
+#: The residuals that involve each non-wheel sensor (the rows of Isermann's residual table),
+#: grouped by the *other* source each compares with (residuals sharing a source would be one
+#: witness, not two). One residual alone cannot name its sensor —
+#: yaw-versus-steering is shared, and a level at rest is also the grade or bank the vehicle
+#: stood on — so a sensor alert on one of these needs residuals against two sources to agree.
+COMPONENT_RESIDUALS: dict[str, tuple[tuple[str, ...], ...]] = {
+    "yaw_sensor": (("yaw",), ("yaw_vs_wheels",), ("steering_vs_yaw",)),
+    "steering_angle_sensor": (("steering_vs_wheels",), ("steering_vs_yaw",)),
+    "accel_long_sensor": (("accel_long",), ("accel_long_vs_wheels",)),
+    "accel_lat_sensor": (("accel_lat",), ("accel_lat_vs_wheels",)),
 }
 
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
@@ -63,14 +66,18 @@ def suggestion_for(component: str) -> str:
     return f"{text} {SAFETY_NOTE}"
 
 
-def choose_component(evidence: dict[str, float], signal_z: float, attribution_z: float) -> tuple[str, str | None]:
+def choose_component(evidence: dict[str, float], signal_z: float, attribution_z: float,
+                     changed: set[str] | frozenset[str] = frozenset()) -> tuple[str, str | None]:
     """Suspected component and the evidence key that decided it.
 
     ``evidence`` maps keys ``wheel_signal_<pos>``, ``wheel_ratio_<pos>``,
     ``yaw``, ``yaw_vs_wheels``, ``steering_vs_wheels``, ``steering_vs_yaw``,
     ``accel_long``, ``accel_long_vs_wheels``, ``accel_lat``,
     ``accel_lat_vs_wheels`` to non-negative strengths (|z| or CUSUM/h);
-    missing keys count as 0.
+    missing keys count as 0. ``changed``: the non-wheel sensors whose own residuals
+    changed together (a corroborated drift alarm, models.scorer); with a wheel ratio
+    abnormal, only such a sensor is preferred over the tyre — a level against the
+    peers alone may be the vehicle's healthy offset or a coarse logger step.
     """
     e = lambda key: float(evidence.get(key, 0.0) or 0.0)  # noqa: E731
     signal = {p: e(f"wheel_signal_{p}") for p in POSITIONS}
@@ -99,7 +106,10 @@ def choose_component(evidence: dict[str, float], signal_z: float, attribution_z:
         "accel_lat_sensor": (max(e("accel_lat"), vs_wheels * e("accel_lat_vs_wheels")),
                              "accel_lat" if e("accel_lat") >= vs_wheels * e("accel_lat_vs_wheels") else "accel_lat_vs_wheels"),
     }
-    if wheels_abnormal:
+    # a tyre explains its ratio and the versus-wheels residuals (zeroed above), never a level
+    # at rest or yaw against steering: a sensor whose own residuals changed is the sensor
+    changed_strength = max((v[0] for c, v in candidates.items() if c in changed), default=0.0)
+    if wheels_abnormal and changed_strength < attribution_z:
         candidates[f"tyre_{best_ratio}"] = (ratio[best_ratio], f"wheel_ratio_{best_ratio}")
     component = max(candidates, key=lambda c: candidates[c][0])
     strength, key = candidates[component]

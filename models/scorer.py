@@ -28,8 +28,15 @@ before the baseline was taken), or when the rolling vehicle score exceeds
 median + ``inspect_score_z`` scaled MADs of the fleet's vehicle scores; an
 alert is held for ``alert_hold_trips`` trips. A *sensor* alert leaves out
 ratio-only evidence (a tyre) and versus-wheels residuals while a wheel ratio
-is off. ``inspect`` needs a sensor alert on a sensor component;
-``flagged_since`` is the date of the first trip of the current run of alerts.
+is off. A drift alarm on a non-wheel sensor counts only when a residual
+against a second source agrees (at ``confirm_strength``·h; rows in
+models.attribution.COMPONENT_RESIDUALS): on the tuning seeds every false
+sensor alert on a healthy vehicle came from one residual alone — a lateral
+level at rest moved by the road bank of the stops, yaw against steering moved
+by load and route. Once raised, a sensor alert stands while some sensor
+residual stays at ``confirm_strength``·h (hysteresis: one episode, one alert).
+``inspect`` needs a sensor alert on a sensor component; ``flagged_since`` is
+the date of the first trip of the current run of alerts.
 """
 
 from __future__ import annotations
@@ -318,7 +325,8 @@ class FleetScorer:
         kinds = np.array([_alarm_kind(c) for c in self.statistics_])
         ratio_strength = strength[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(df))
         wheel_signal = np.array([c.startswith("wheel_signal_") for c in self.statistics_])
-        sensor_alarm = alarm[:, wheel_signal].any(axis=1) | self._corroborated(strength, ratio_strength < 0.5)
+        confirmed = self._corroborated(strength, ratio_strength < 0.5)
+        sensor_alarm = alarm[:, wheel_signal].any(axis=1) | np.any(list(confirmed.values()) or [False], axis=0)
         peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
         wide["drift_alarm"] = alarm.any(axis=1)
@@ -329,11 +337,13 @@ class FleetScorer:
         # hysteresis: a sensor alert, once raised, stands while some sensor residual stays at
         # confirm_strength·h or more (a CUSUM hovering about h is one episode, not several)
         raised = sensor_alarm | peer_sensor | score_alert
-        sensor_stats = wheel_signal | np.isin(self.statistics_, [r for rs in COMPONENT_RESIDUALS.values() for r in rs])
+        sensor_stats = wheel_signal | np.isin(self.statistics_, [r for ws in COMPONENT_RESIDUALS.values() for w in ws for r in w])
         gated = np.where((kinds == "vs_wheels")[None, :] & (ratio_strength >= 0.5)[:, None], 0.0, strength)
         sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
         wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
         wide["epoch_key"] = vehicle_key
+        for component, hit in confirmed.items():
+            wide[f"confirmed__{component}"] = hit
         for j, s in enumerate(self.statistics_):
             wide[f"strength__{s}"] = np.maximum(hi[:, j], lo[:, j]) / self.cusum_h_
         long = pd.DataFrame({
@@ -351,26 +361,27 @@ class FleetScorer:
         long.attrs["per_trip"] = wide
         return long
 
-    def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray) -> np.ndarray:
-        """Per trip: does some non-wheel sensor have one residual past h (strength > 1) and a
-        second residual of its row (models.attribution.COMPONENT_RESIDUALS) at least
+    def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray) -> dict[str, np.ndarray]:
+        """Per non-wheel sensor and trip: one residual past h (strength > 1) and a residual
+        against a second source (models.attribution.COMPONENT_RESIDUALS) at least
         ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
-        agree (else the wheels explain them). A sensor with only one residual measured
+        agree (else the wheels explain them). A sensor with only one witness measured
         needs only that one."""
         col = {s: j for j, s in enumerate(self.statistics_)}
-        out = np.zeros(len(strength), dtype=bool)
-        for residuals in COMPONENT_RESIDUALS.values():
-            idx = [col[r] for r in residuals if r in col]
-            if not idx:
+        gated = np.where(np.array(["_vs_wheels" in c for c in self.statistics_])[None, :] & ~wheels_agree[:, None],
+                         0.0, strength)
+        out = {}
+        for component, witnesses in COMPONENT_RESIDUALS.items():
+            groups = [[col[r] for r in w if r in col] for w in witnesses]
+            groups = [g for g in groups if g]
+            if not groups:
                 continue
-            st = strength[:, idx].copy()
-            vs = np.array(["_vs_wheels" in self.statistics_[j] for j in idx])
-            st[:, vs] = np.where(wheels_agree[:, None], st[:, vs], 0.0)
-            if len(idx) == 1:
-                out |= st[:, 0] > 1.0
+            st = np.column_stack([gated[:, g].max(axis=1) for g in groups])
+            if len(groups) == 1:
+                out[component] = st[:, 0] > 1.0
                 continue
             top2 = np.sort(st, axis=1)[:, -2:]
-            out |= (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
+            out[component] = (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
         return out
 
     def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -425,7 +436,8 @@ class FleetScorer:
             ev = self._evidence(zmed.loc[vid])
             for st in self.statistics_:
                 ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
-            component, key = choose_component(ev, self.signal_z, self.attribution_z)
+            confirmed = {c for c in COMPONENT_RESIDUALS if bool(strength.get(f"confirmed__{c}", {}).get(vid, False))}
+            component, key = choose_component(ev, self.signal_z, self.attribution_z, confirmed)
             if component.startswith("tyre_"):
                 pos = self._tyre_position(cur[cur["vehicle_id"] == vid], recent[recent["vehicle_id"] == vid])
                 component, key = f"tyre_{pos}", f"wheel_ratio_{pos}"

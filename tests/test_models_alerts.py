@@ -16,6 +16,10 @@ def _scorer() -> FleetScorer:
     return sc
 
 
+def _any(sc: FleetScorer, strength: np.ndarray, wheels_agree: bool) -> bool:
+    return any(bool(hit[0]) for hit in sc._corroborated(strength, np.array([wheels_agree])).values())
+
+
 def _strength(**values) -> np.ndarray:
     row = np.zeros((1, len(STATS)))
     for name, v in values.items():
@@ -25,20 +29,20 @@ def _strength(**values) -> np.ndarray:
 
 def test_shared_yaw_versus_steering_residual_alone_sends_no_sensor_to_inspection():
     sc = _scorer()
-    assert not sc._corroborated(_strength(steering_vs_yaw=3.0), np.array([True]))[0]
-    assert sc._corroborated(_strength(steering_vs_yaw=3.0, steering_vs_wheels=0.6), np.array([True]))[0]
+    assert not _any(sc, _strength(steering_vs_yaw=3.0), True)
+    assert _any(sc, _strength(steering_vs_yaw=3.0, steering_vs_wheels=0.6), True)
 
 
 def test_level_at_rest_needs_the_residual_against_the_wheels_to_agree():
     sc = _scorer()
-    assert not sc._corroborated(_strength(accel_lat=2.0, accel_lat_vs_wheels=0.3), np.array([True]))[0]
-    assert sc._corroborated(_strength(accel_lat=2.0, accel_lat_vs_wheels=0.5), np.array([True]))[0]
+    assert not _any(sc, _strength(accel_lat=2.0, accel_lat_vs_wheels=0.3), True)
+    assert _any(sc, _strength(accel_lat=2.0, accel_lat_vs_wheels=0.5), True)
 
 
 def test_residual_against_the_wheels_does_not_corroborate_while_a_wheel_ratio_is_off():
     sc = _scorer()
-    assert not sc._corroborated(_strength(yaw=1.5, yaw_vs_wheels=4.0), np.array([False]))[0]
-    assert sc._corroborated(_strength(yaw=1.5, yaw_vs_wheels=4.0), np.array([True]))[0]
+    assert not _any(sc, _strength(yaw=1.5, yaw_vs_wheels=4.0), False)
+    assert _any(sc, _strength(yaw=1.5, yaw_vs_wheels=4.0), True)
 
 
 def test_alert_latches_while_sustained_and_restarts_per_vehicle():
@@ -46,3 +50,12 @@ def test_alert_latches_while_sustained_and_restarts_per_vehicle():
     sustained = np.array([1, 1, 1, 0, 1, 1, 1, 1], dtype=bool)
     key = np.array(["a"] * 5 + ["b"] * 3)
     np.testing.assert_array_equal(_latched(raised, sustained, key), [0, 1, 1, 0, 0, 0, 1, 1])
+
+
+def test_tyre_does_not_hide_a_yaw_sensor_whose_own_residuals_changed():
+    from models.attribution import choose_component
+    evidence = {"wheel_ratio_rl": 12.0, "yaw": 6.0, "steering_vs_yaw": 3.0, "yaw_vs_wheels": 9.0}
+    # a yaw level against the peers alone may be a healthy offset: the tyre explains the ratio
+    assert choose_component(evidence, 4.0, 4.0)[0] == "tyre_rl"
+    # the drift says the yaw sensor's rest level and yaw-versus-steering changed together
+    assert choose_component(evidence, 4.0, 4.0, changed={"yaw_sensor"})[0] == "yaw_sensor"
