@@ -101,6 +101,27 @@ def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None
 CASES = (*synthetic_fleet.FAULTS, "tyre_change", "spare_fl", "spare_rr")
 
 
+def bounded(case: str) -> dict[str, tuple[str, float]]:
+    """Features a case may move a little: {feature: (fault it is measured against, largest share)}.
+
+    These are physical side effects, far smaller than the fault that feature
+    exists to catch, so they cannot be mistaken for it:
+    - one tyre of another size shifts the wheel yaw reference's speed scale
+      (calibrated to the median wheel) by a fraction of its radius change: the
+      yaw gain moves by tenths of a per cent, against several per cent for a
+      yaw-gain fault;
+    - a damaged tone ring's erratic tooth steps do not cancel exactly over a
+      trip's distance, so its own wheel's ratio moves a little, far less than a
+      deflating tyre moves it.
+    """
+    kind, _, pos = case.rpartition("_")
+    if kind in ("tyre_deflation", "tyre_mismatch", "spare"):
+        return {"yaw_gain": ("yaw_gain", 0.1)}
+    if kind == "tone_ring":
+        return {per_wheel("ratio", pos): (f"tyre_deflation_{pos}", 0.25)}
+    return {}
+
+
 def faulty_args(case: str, seed: int) -> tuple:
     return (seed, case, ON) if case in synthetic_fleet.FAULTS else (seed, None, (*ON, case))
 
@@ -126,10 +147,16 @@ def lost_data(case: str, seed: int, feature: str) -> bool:
 def test_fault_moves_its_own_features_pinned_to_its_wheel_and_nothing_else(case):
     spread = healthy_spread()
     respond, may_move, pinned = expectation(case)
+    limits = bounded(case)
     problems = []
     for seed in VEHICLE_SEEDS:
         faulty, reference = effect(case, seed)
         delta = (faulty - reference).abs()
+        for f, (against, share) in limits.items():
+            target_fault, target_ref = effect(against, seed)
+            allowed = share * abs(target_fault[f] - target_ref[f])
+            if not (np.isnan(faulty[f]) or delta[f] <= allowed):
+                problems.append(f"seed {seed}: {f} moved {delta[f]:.4g} > {share} × the {against} fault's move")
         for f in respond:
             if not delta[f] >= MARGIN * spread[f]:
                 problems.append(f"seed {seed}: {f} moved {delta[f]:.4g}, needs {MARGIN}×{spread[f]:.4g}")
@@ -140,7 +167,7 @@ def test_fault_moves_its_own_features_pinned_to_its_wheel_and_nothing_else(case)
                 problems.append(f"seed {seed}: {family} moved most on the wrong wheel {moves}")
         flaky = healthy()[seed].isna().any() & ~healthy()[seed].isna().all()
         for f in FEATURE_COLUMNS:
-            if f in respond or f in may_move:
+            if f in respond or f in may_move or f in limits:
                 continue
             if np.isnan(faulty[f]) and not np.isnan(reference[f]) and lost_data(case, seed, f):
                 continue
