@@ -173,7 +173,7 @@ def _write_samples(store, trips, ids, vehicles) -> None:
                               "vehicle_speed": v, "yaw_rate": yaw, "steering_angle": yaw * 3.0 * 16 / 15,
                               "accel_long": np.gradient(v, t), "accel_lat": v * yaw, "brake": False,
                               "lamp_abs": t > t[-1] / 2, "lamp_esc": False,
-                              "dtc": np.where(t > t[-1] / 2, "C0035", None)})
+                              "dtc": np.where(t > t[-1] / 2, "TT-W31", None)})
         parts.setdefault(sample_file, []).append(frame)
     for rel, frames in parts.items():
         atomic_write_parquet(store.root / rel, pd.concat(frames, ignore_index=True))

@@ -34,7 +34,7 @@ def test_comma_file_with_every_canonical_signal_is_read_in_si():
     assert df.yaw_rate.iloc[4] == pytest.approx(4 * math.pi / 180)
     assert df.brake.tolist() == [False, False, True, True, False]
     assert df.lamp_abs.tolist() == [False, False, False, False, True]
-    assert df.dtc.iloc[3] == "C0035" and pd.isna(df.dtc.iloc[0])
+    assert df.dtc.iloc[3] == "TT-W31" and pd.isna(df.dtc.iloc[0])
     assert r.trips[0].info["odometer_end_km"] == pytest.approx(12000.1)
     assert "Cabin temp" in r.warnings[0]
 

@@ -110,7 +110,7 @@ def _apply_fault(r: dict, f: Fault, day: int, dist: float, rng: np.random.Genera
         r["steer_yaw_residual_dps"] += 0.6 * s
     if f.lamp_day is not None and day >= f.lamp_day:
         r["lamp_abs_on" if f.kind == "wheel_sensor" else "lamp_esc_on"] = True
-        r["dtc"] = "C0035" if f.kind == "wheel_sensor" else "C0196"
+        r["dtc"] = "TT-W31" if f.kind == "wheel_sensor" else "TT-Y09"
 
 
 def truth_frame(faults: tuple[Fault, ...]) -> pd.DataFrame:
