@@ -54,6 +54,7 @@ class EvaluationReport:
     metrics: dict[str, dict[str, float]]
     early: "EvaluationReport | None" = None
     backtest: pd.DataFrame | None = None
+    inspections: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
 
     def describe(self) -> str:
@@ -70,6 +71,10 @@ class EvaluationReport:
             else:
                 lines.append(self.backtest.to_string(index=False))
                 lines.append(f"  median days flagged before the lamp: {self.backtest['days_earlier'].median():.1f}")
+        if self.inspections is not None and not self.inspections.empty:
+            lines.append("inspection outcomes recorded in the dashboard (real labels)")
+            lines.append(self.inspections.to_string(index=False))
+            lines.append(_inspection_summary(self.inspections))
         lines += [f"note: {n}" for n in self.notes]
         if self.early is not None:
             lines += ["", self.early.describe()]
@@ -228,14 +233,22 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     }
 
 
-def evaluate(store: Store, truth_csv: Path | None, as_of: dt.date | None, early: bool = True) -> EvaluationReport:
-    """Evaluate against truth (all methods) or, without truth, backtest on lamp events."""
+def evaluate(store: Store, truth_csv: Path | None, as_of: dt.date | None, early: bool = True,
+             outcomes: pd.DataFrame | None = None) -> EvaluationReport:
+    """Evaluate against truth (all methods) or, without truth, backtest on lamp events.
+
+    ``outcomes`` are inspection outcomes recorded by the workshop (vehicle_id,
+    date, outcome, component, note); each is compared with what tracktrue had
+    flagged before that inspection.
+    """
     fleet = score_fleet(store, as_of)
+    inspections = _inspections(fleet, outcomes) if outcomes is not None and len(outcomes) else None
     if truth_csv is None:
-        return EvaluationReport(fleet.as_of, {}, backtest=_backtest(fleet),
+        return EvaluationReport(fleet.as_of, {}, backtest=_backtest(fleet), inspections=inspections,
                                 notes=["without a truth file the first lamp event of each vehicle is the event"])
     truth = read_truth(Path(truth_csv))
     report = _evaluate_fleet(fleet, truth)
+    report.inspections = inspections
     onsets = pd.to_datetime(pd.Series(truth["onset_date"]))
     early_date = (onsets.median() + pd.Timedelta(days=7)).date() if len(onsets) else None
     if early and early_date is not None and early_date < fleet.as_of:
@@ -282,3 +295,30 @@ def _backtest(fleet: ScoredFleet) -> pd.DataFrame:
                      "days_earlier": (when.date() - start).days if start else 0})
     return pd.DataFrame(rows, columns=["vehicle_id", "lamp_event", "flagged_since", "days_earlier"])
 
+
+
+def _inspections(fleet: ScoredFleet, outcomes: pd.DataFrame) -> pd.DataFrame:
+    """Each recorded inspection beside the alert run (if any) that began before it."""
+    trips = fleet.drift.attrs["per_trip"]
+    suspected = fleet.status.set_index("vehicle_id")["suspected_component"]
+    rows = []
+    for rec in outcomes.itertuples(index=False):  # one row per inspection, not per sample
+        when = pd.Timestamp(rec.date)
+        when = when.tz_localize("UTC") if when.tzinfo is None else when
+        start = _run_start_before(trips, rec.vehicle_id, when)
+        found = rec.component if rec.outcome == "fault_found" else "none"
+        rows.append({"vehicle_id": rec.vehicle_id, "inspected": when.date(), "outcome": rec.outcome,
+                     "component_found": found, "flagged_since": start,
+                     "suspected_component": suspected.get(rec.vehicle_id, "none") if start else "none"})
+    return pd.DataFrame(rows, columns=["vehicle_id", "inspected", "outcome", "component_found",
+                                       "flagged_since", "suspected_component"])
+
+
+def _inspection_summary(table: pd.DataFrame) -> str:
+    flagged = table["flagged_since"].notna()
+    found = table["outcome"].eq("fault_found")
+    agree = found & flagged & table["component_found"].eq(table["suspected_component"])
+    return (f"  flagged before inspection: {int(flagged.sum())} of {len(table)}; "
+            f"faults found on flagged vehicles: {int((found & flagged).sum())} of {int(flagged.sum())}; "
+            f"component agreed: {int(agree.sum())} of {int((found & flagged).sum())}; "
+            f"faults found on vehicles not flagged: {int((found & ~flagged).sum())}")

@@ -136,3 +136,22 @@ def test_truth_file_errors_name_file_and_line(tmp_path):
         read_truth(bad)
     with pytest.raises(UserError, match="not found"):
         read_truth(tmp_path / "missing.csv")
+
+
+def test_inspection_outcomes_recorded_in_the_dashboard_are_evaluated_as_real_labels(scored):
+    from dashboard.outcomes import read_outcomes
+    from dashboard.workshop import record_outcome
+
+    store, _ = scored
+    ranking = models.ranking_table(store)
+    top = ranking.iloc[0]
+    healthy = ranking[ranking["status"].eq("ok")].iloc[0]
+    last_day = pd.Timestamp(ranking["last_trip"].max()).date() + dt.timedelta(days=1)
+    record_outcome(store, top["vehicle_id"], last_day, "fault_found", top["suspected_component"], "confirmed")
+    record_outcome(store, healthy["vehicle_id"], last_day, "no_fault_found", "none")
+    report = models.evaluate(store, truth_csv=None, as_of=None, outcomes=read_outcomes(store))
+    table = report.inspections.set_index("vehicle_id")
+    assert table.loc[top["vehicle_id"], "flagged_since"] is not None
+    assert table.loc[top["vehicle_id"], "component_found"] == table.loc[top["vehicle_id"], "suspected_component"]
+    assert pd.isna(table.loc[healthy["vehicle_id"], "flagged_since"])
+    assert "component agreed: 1 of 1" in report.describe()

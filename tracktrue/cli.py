@@ -254,9 +254,11 @@ def cmd_vehicle(args) -> int:
 
 
 def cmd_evaluate(args) -> int:
+    from dashboard.outcomes import read_outcomes
     from models import evaluate
 
-    report = evaluate(Store.open(args.store), truth_csv=args.truth, as_of=args.as_of)
+    store = Store.open(args.store)
+    report = evaluate(store, truth_csv=args.truth, as_of=args.as_of, outcomes=read_outcomes(store))
     print(report.describe())
     return EXIT_OK
 
