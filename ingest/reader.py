@@ -301,3 +301,27 @@ def clean_text(col: pa.Array) -> pa.Array:
     """Trimmed strings with empty cells as null."""
     s = pc.utf8_trim_whitespace(col.cast(pa.string()))
     return pc.if_else(pc.equal(s, ""), pa.scalar(None, pa.string()), s)
+
+
+def read_keyed_csv(path, what: str, required, optional) -> tuple["LogText", dict[str, int]]:
+    """A small side file (registry, service events): its lines and the column index of each known name.
+
+    Errors name the file and what is wrong; they are ``UserError`` because such
+    a file is an argument of the command, not one of many logs.
+    """
+    from tracktrue.errors import UserError
+
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise UserError(f"{what} {path} cannot be read: {exc}") from None
+    try:
+        text = split_lines(raw)
+    except FileUnusable as exc:
+        raise UserError(f"{what} {path}: {exc}") from None
+    header = [h.strip().lower() for h in text.header]
+    missing = [c for c in required if c not in header]
+    if missing:
+        raise UserError(f"{what} {path}: missing required column(s) {', '.join(missing)} "
+                        f"(header: {', '.join(text.header)}; expected {', '.join((*required, *optional))})")
+    return text, {c: header.index(c) for c in (*required, *optional) if c in header}

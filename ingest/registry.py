@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
+from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
 from tracktrue.vin import vin_problem
@@ -45,20 +45,7 @@ class RegistryResult:
 def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
     """Validated registry rows (one per vehicle_id) and what was rejected."""
     result = RegistryResult(str(path))
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise UserError(f"vehicle registry {path} cannot be read: {exc}") from None
-    try:
-        log = split_lines(raw)
-    except FileUnusable as exc:
-        raise UserError(f"vehicle registry {path}: {exc}") from None
-    header = [h.strip().lower() for h in log.header]
-    missing = [c for c in REGISTRY_REQUIRED if c not in header]
-    if missing:
-        raise UserError(f"vehicle registry {path}: missing required column(s) {', '.join(missing)} "
-                        f"(header: {', '.join(log.header)})")
-    index = {c: header.index(c) for c in (*REGISTRY_REQUIRED, *REGISTRY_OPTIONAL) if c in header}
+    log, index = read_keyed_csv(path, "vehicle registry", REGISTRY_REQUIRED, REGISTRY_OPTIONAL)
     numeric = [index[c] for c in PLAUSIBLE if c in index]
     text = [index[c] for c in _TEXT_COLUMNS if c in index]
     parsed = parse_rows(log, numeric, text)

@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 
 from ingest import catalog
-from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines
+from ingest.reader import FileUnusable, clean_text, parse_rows, read_keyed_csv
 from tracktrue.errors import UserError
 from tracktrue.schema import (COMPONENTS, SERVICE_EVENT_AREAS, SERVICE_EVENT_KIND_ALIASES, SERVICE_EVENT_KINDS,
                               SERVICE_EVENTS_COLUMNS)
@@ -86,20 +86,7 @@ class ServiceEventsSummary:
 
 def read_service_csv(path: Path) -> tuple[pd.DataFrame, list[tuple[int, str]]]:
     """Raw text rows (``line`` plus the event columns, None for empty cells) and structural rejects."""
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise UserError(f"service events {path} cannot be read: {exc}") from None
-    try:
-        text = split_lines(raw)
-    except FileUnusable as exc:
-        raise UserError(f"service events {path}: {exc}") from None
-    header = [h.strip().lower() for h in text.header]
-    missing = [c for c in REQUIRED if c not in header]
-    if missing:
-        raise UserError(f"service events {path}: missing required column(s) {', '.join(missing)} "
-                        f"(header: {', '.join(text.header)}; expected {', '.join(REQUIRED + OPTIONAL)})")
-    index = {c: header.index(c) for c in (*REQUIRED, *OPTIONAL) if c in header}
+    text, index = read_keyed_csv(path, "service events", REQUIRED, OPTIONAL)
     try:
         parsed = parse_rows(text, [], list(index.values()))
     except FileUnusable as exc:
