@@ -11,7 +11,7 @@ from tracktrue.schema import POSITIONS, REGISTRY_OPTIONAL, REGISTRY_REQUIRED, SA
 from tracktrue.vin import vin_problem
 
 DEG = np.pi / 180
-G0 = 9.80665
+G0 = 9.80665  # standard gravity, exact (3rd CGPM 1901; ISO 80000-3)
 
 
 def _metrics(df: pd.DataFrame, spec: dict) -> dict:

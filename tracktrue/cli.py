@@ -200,13 +200,17 @@ def cmd_ingest(args) -> int:
     print(summary.describe())
     if args.service_events is None:
         return summary.exit_code
-    return max(summary.exit_code, cmd_service_events(argparse.Namespace(file=args.service_events, store=args.store)))
+    return max(summary.exit_code, _import_service_events(args.service_events, store))
 
 
 def cmd_service_events(args) -> int:
+    return _import_service_events(args.file, Store.open(args.store))
+
+
+def _import_service_events(path: Path, store: Store) -> int:
     from ingest.service_events import import_service_events
 
-    summary = import_service_events(args.file, Store.open(args.store))
+    summary = import_service_events(path, store)
     print(summary.describe())
     return summary.exit_code
 
