@@ -1,10 +1,13 @@
 """Peer-group normalisation: each feature robust-scaled against comparable vehicles.
 
-A peer group is (platform, sample-rate class): a van's wheel ratio is compared
+A peer group is (platform, logger class): a van's wheel ratio is compared
 with other vans', and a 1 Hz polled logger's jitter never with a 50 Hz bus
-capture's (DESIGN.md, "Logger kinds"). A group with fewer than
-``min_peer_vehicles`` vehicles falls back to the whole fleet within the same
-rate class, and every trip carries the mark ``peer_fallback``.
+capture's (DESIGN.md, "Logger kinds"). The logger class is the trip's
+``logger_kind`` (bus_capture | polled | telematics, inferred by features/ from
+the data) where trip_features carries it, else its sample-rate class. A group
+with fewer than ``min_peer_vehicles`` vehicles falls back to the whole fleet
+within the same logger class, and every trip carries the mark
+``peer_fallback``.
 
 Statistics are computed *leaving the vehicle out*: a vehicle's z-scores use
 the median and scaled MAD of the other vehicles' trips only, because a small
@@ -61,9 +64,20 @@ def rate_class(sample_rate_hz: pd.Series) -> pd.Series:
     return pd.Series(labels[idx], index=sample_rate_hz.index, dtype=object)
 
 
-def assign_peer_groups(trips: pd.DataFrame, min_peer_vehicles: int) -> pd.DataFrame:
-    """``peer_group`` and ``peer_fallback`` for each trip (needs vehicle_id, platform, sample_rate_hz)."""
+def logger_class(trips: pd.DataFrame) -> pd.Series:
+    """The trip's ``logger_kind`` where known, else its rate class (see module doc)."""
     rc = rate_class(trips["sample_rate_hz"])
+    if "logger_kind" not in trips.columns:
+        return rc
+    kind = trips["logger_kind"].astype(object)
+    known = kind.notna() & (kind.astype(str).str.strip() != "")
+    return kind.astype(str).str.strip().where(known, rc)
+
+
+def assign_peer_groups(trips: pd.DataFrame, min_peer_vehicles: int) -> pd.DataFrame:
+    """``peer_group`` and ``peer_fallback`` for each trip (needs vehicle_id, platform,
+    sample_rate_hz; uses logger_kind when present)."""
+    rc = logger_class(trips)
     platform = trips["platform"].astype(object).where(trips["platform"].notna(), "unknown_platform")
     primary = platform.astype(str) + "/" + rc
     n_veh = trips.groupby(primary)["vehicle_id"].transform("nunique")

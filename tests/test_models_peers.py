@@ -70,3 +70,19 @@ def test_missing_feature_stays_missing_after_normalisation():
     df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, 3)
     z = normalise(df, peer_statistics(df, ["x"], 0.1, 5), ["x"])["x"]
     assert z.isna().sum() == 5
+
+
+def test_peer_groups_are_platform_by_logger_kind_when_the_features_name_it():
+    buses = _fleet({f"B{i}": [0.1] * 3 for i in range(5)}, rate_hz=50.0).assign(logger_kind="bus_capture")
+    polled = _fleet({f"P{i}": [0.1] * 3 for i in range(5)}, rate_hz=50.0).assign(logger_kind="polled")
+    few = _fleet({"Q0": [0.1] * 3, "Q1": [0.1] * 3}, platform="truck", rate_hz=2.0).assign(logger_kind="polled")
+    unknown = _fleet({f"U{i}": [0.1] * 3 for i in range(5)}, rate_hz=2.0).assign(logger_kind=None)
+    df = pd.concat([buses, polled, few, unknown], ignore_index=True)
+    g = assign_peer_groups(df, min_peer_vehicles=5)
+    group_of = g["peer_group"].groupby(df["vehicle_id"].str[0]).agg(lambda s: set(s))
+    # same platform and rate, different logger kind: never peers
+    assert group_of["B"] == {"van/bus_capture"} and group_of["P"] == {"van/polled"}
+    # a group too small falls back to the fleet of the same logger kind, marked
+    assert group_of["Q"] == {"fleet/polled"} and g.loc[df["vehicle_id"].str.startswith("Q"), "peer_fallback"].all()
+    # a trip whose logger kind is unknown is grouped by its sample rate
+    assert group_of["U"] == {"van/lt3hz"}
