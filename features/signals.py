@@ -139,14 +139,16 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     """Centred moving mean over ``width`` samples that skips NaN (NaN if none valid), along the last axis.
 
     At the ends the window shrinks to the samples that exist. A (k, n) array
-    filters its k rows in one call.
+    filters its k rows in one call; rows missing the same samples (a stack
+    masked by one window) share one count of valid samples.
     """
     valid = np.isfinite(x)
     if valid.all():
         return uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0) / _window_share(x.shape[-1], width)
-    both = uniform_filter1d(np.stack([np.where(valid, x, 0.0), valid.astype(np.float64)]), width, axis=-1,
-                            mode="constant", cval=0.0)
-    total, count = both[0], both[1]
+    total = uniform_filter1d(np.where(valid, x, 0.0), width, axis=-1, mode="constant", cval=0.0)
+    if valid.ndim == 2 and (valid == valid[0]).all():
+        valid = valid[0]
+    count = uniform_filter1d(valid.astype(np.float64), width, axis=-1, mode="constant", cval=0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(count > 0.5 / width, total / count, np.nan)
 
