@@ -1,13 +1,15 @@
 """Speed of the features stage against the I/O floor, at two fleet sizes.
 
-The floor is the time to read the same Parquet columns of the same trips into
-numpy arrays and nothing else. "extract" is the per-trip function alone, fed
-the numpy columns the engine slices from Parquet; "run" is the whole
-`run_features` (read, extract, publish) in one process, and "pool" the same
-with the local process pool (``workers``). Each figure is the fastest of
-REPEATS runs, as wall time and as this process's CPU time (children
-included for the pool): the machine is shared, and CPU time is what
-contention disturbs least. Growth from the small to the large fleet should be linear.
+The floor is the time to read, from the same part files in the same run, exactly
+the Parquet columns the engine reads (trip_id and features.columns.FEATURE_INPUTS)
+into numpy arrays and nothing else; the part files hold exactly the benchmarked
+trips. "extract" is the per-trip function alone, fed the numpy columns the engine
+slices from Parquet; "run" is the whole `run_features` (read, extract, publish)
+in one process, and "pool" the same with the local process pool (``workers``).
+Each figure is the fastest of REPEATS runs, as wall time and as CPU time
+(time.process_time, plus finished children for the pool): the machine is
+shared, and CPU time is what contention disturbs least. Growth from the small
+to the large fleet should be linear (samples/s about constant).
 
     .venv/bin/python benchmarks/bench_features.py [--trips 16 32] [--duration 1200] [--workers 2]
 """
@@ -26,8 +28,8 @@ import pyarrow.parquet as pq
 import synthetic_fleet
 from features import extract_trip_features, run_features
 from features.batch import trip_row_index
-from features.columns import slice_rows, table_columns
-from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_COLUMNS
+from features.columns import FEATURE_INPUTS, slice_rows, table_columns
+from tracktrue.schema import SAMPLE_COLUMNS
 from tracktrue.store import Store, atomic_write_parquet
 
 TRIPS_PER_FILE = 8
@@ -60,14 +62,12 @@ def build(root: Path, n_trips: int, duration_s: float) -> tuple[Store, dict, dic
     return store, frames, specs
 
 
-def io_floor(store: Store) -> None:
-    """Read every trip's sample columns into numpy arrays."""
-    trips = store.read_table("trips")
-    columns = ["trip_id", "time", *NUMERIC_SIGNALS, "brake"]
-    for sample_file, group in trips.groupby("sample_file"):
-        table = pq.read_table(store.root / sample_file, columns=columns,
-                              filters=[("trip_id", "in", list(group["trip_id"]))])
-        for name in columns[1:]:
+def io_floor(files: list[Path]) -> None:
+    """Read the columns the engine reads (features.batch.read_sample_file) of each part file into numpy."""
+    columns = ["trip_id", *FEATURE_INPUTS]
+    for path in files:
+        table = pq.read_table(path, columns=columns)
+        for name in columns:
             table.column(name).to_numpy()
 
 
@@ -86,8 +86,8 @@ def trip_columns(store: Store) -> list[tuple[dict, str]]:
 def clocks(fn) -> tuple[float, float]:
     """(wall, CPU) seconds of one call; CPU counts this process and its finished children."""
     def cpu() -> float:
-        t = os.times()
-        return t.user + t.system + t.children_user + t.children_system
+        children = os.times()
+        return time.process_time() + children.children_user + children.children_system
     w0, c0 = time.perf_counter(), cpu()
     fn()
     return time.perf_counter() - w0, cpu() - c0
@@ -106,20 +106,21 @@ def main() -> None:
     parser.add_argument("--workers", type=int, default=2, help="local process pool size for the 'pool' figures")
     args = parser.parse_args()
     print(f"{'trips':>6} {'samples':>9} {'clock':>5} {'floor s':>8} {'extract s':>9} {'run s':>7} {'pool s':>7} "
-          f"{'extract/floor':>13} {'run/floor':>9} {'pool/floor':>10} {'run samples/s':>13}")
+          f"{'extract/floor':>13} {'run/floor':>9} {'pool/floor':>10} {'extract samples/s':>17} {'run samples/s':>13}")
     for n in args.trips:
         with tempfile.TemporaryDirectory() as tmp:
             store, frames, specs = build(Path(tmp), n, args.duration)
             n_samples = sum(len(f) for f in frames.values())
             trips = trip_columns(store)
-            floor = best_of(REPEATS, lambda: io_floor(store))
+            files = [store.root / f for f in sorted(set(store.read_table("trips")["sample_file"]))]
+            floor = best_of(REPEATS, lambda: io_floor(files))
             extract = best_of(REPEATS, lambda: [extract_trip_features(c, specs[v]) for c, v in trips])
             run = best_of(REPEATS, lambda: run_features(store, rebuild=True))
             pool = best_of(REPEATS, lambda: run_features(store, rebuild=True, workers=args.workers))
         for k, clock in enumerate(("wall", "cpu")):
             print(f"{n:>6} {n_samples:>9} {clock:>5} {floor[k]:>8.3f} {extract[k]:>9.3f} {run[k]:>7.3f} "
                   f"{pool[k]:>7.3f} {extract[k] / floor[k]:>13.1f} {run[k] / floor[k]:>9.1f} "
-                  f"{pool[k] / floor[k]:>10.1f} {n_samples / run[k]:>13,.0f}")
+                  f"{pool[k] / floor[k]:>10.1f} {n_samples / extract[k]:>17,.0f} {n_samples / run[k]:>13,.0f}")
 
 
 if __name__ == "__main__":
