@@ -7,12 +7,13 @@ units (ingest/grammar.py; a TOML mapping profile for the rest,
 ingest/profile.py), converts every signal to SI, validates every row, splits
 logs into trips on time gaps, and writes the store's raw layer
 (ingest/samples.py) and catalog (ingest/catalog.py), then publishes the
-tables ``trips``, ``vehicles``, ``ingested_files`` and ``rejects``.
+tables ``trips``, ``trip_signals`` (per trip and signal: fresh-value rate,
+step, stale share, read lag), ``vehicles``, ``ingested_files`` and ``rejects``.
 
 Exit codes:
   0  every file was ingested (or was already), no row or column was rejected
   1  the run finished, but some input was rejected: a whole file (empty,
-     binary, no time column, no wheel speed, relative time without a start),
+     binary, no time column, no wheel or vehicle speed, relative time without a start),
      a column (missing/unknown unit, voltage without calibration), a data row (not a number, outside the physical
      range, bad time, duplicate or backwards time, wrong field count, trip
      already stored from another file) or a registry row; see the summary and

@@ -1,6 +1,6 @@
 """The batch catalog (DuckDB at ``store.catalog_path``) and its published copies.
 
-Tables: ``vehicles``, ``trips``, ``ingested_files``, ``rejects``. Only batch
+Tables: ``vehicles``, ``trips``, ``trip_signals``, ``ingested_files``, ``rejects``. Only batch
 jobs open the DuckDB file (one writer); readers read the Parquet tables that
 ``publish`` writes with ``Store.publish_table``.
 
@@ -22,7 +22,13 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
-from tracktrue.schema import NUMERIC_SIGNALS, REGISTRY_OPTIONAL, REGISTRY_REQUIRED, TRIPS_COLUMNS
+from tracktrue.schema import (
+    NUMERIC_SIGNALS,
+    REGISTRY_OPTIONAL,
+    REGISTRY_REQUIRED,
+    TRIP_SIGNALS_COLUMNS,
+    TRIPS_COLUMNS,
+)
 from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
@@ -41,13 +47,14 @@ TRIP_COLUMNS: tuple[str, ...] = (
 VEHICLE_COLUMNS: tuple[str, ...] = (*REGISTRY_REQUIRED, *REGISTRY_OPTIONAL, "spec_source")
 FILE_COLUMNS: tuple[str, ...] = ("path", "sha256", "status", "reason", "n_rows", "n_rejected", "n_trips", "ingested_at")
 REJECT_COLUMNS: tuple[str, ...] = ("source_file", "row", "reason")
-_TEXT = {"trip_id", "vehicle_id", "source_file", "sample_file", "source_sha256", "signals", "platform", "depot",
+_TEXT = {"trip_id", "vehicle_id", "signal", "source_file", "sample_file", "source_sha256", "signals", "platform", "depot",
          "vin", "spec_source", "path", "sha256", "status", "reason"}
 _INT = {"n_samples", "n_rows", "n_rejected", "n_trips", "row"}
 _TIME = {"start_time", "end_time", "ingested_at"}
+_BOOL = {"present"}
 _KEYS = {"trips": "trip_id", "vehicles": "vehicle_id", "ingested_files": "path"}
-TABLE_COLUMNS = {"trips": TRIP_COLUMNS, "vehicles": VEHICLE_COLUMNS, "ingested_files": FILE_COLUMNS,
-                 "rejects": REJECT_COLUMNS}
+TABLE_COLUMNS = {"trips": TRIP_COLUMNS, "trip_signals": TRIP_SIGNALS_COLUMNS, "vehicles": VEHICLE_COLUMNS,
+                 "ingested_files": FILE_COLUMNS, "rejects": REJECT_COLUMNS}
 
 
 def _sql_type(col: str) -> str:
@@ -57,6 +64,8 @@ def _sql_type(col: str) -> str:
         return "BIGINT"
     if col in _TIME:
         return "TIMESTAMPTZ"
+    if col in _BOOL:
+        return "BOOLEAN"
     return "DOUBLE"
 
 
@@ -92,7 +101,7 @@ def _arrow(name: str, df: pd.DataFrame) -> pa.Table:
     for c in TABLE_COLUMNS[name]:
         sql = _sql_type(c)
         typ = {"VARCHAR": pa.string(), "BIGINT": pa.int64(), "TIMESTAMPTZ": pa.timestamp("us", tz="UTC"),
-               "DOUBLE": pa.float64()}[sql]
+               "DOUBLE": pa.float64(), "BOOLEAN": pa.bool_()}[sql]
         fields.append(pa.field(c, typ))
     return pa.Table.from_pandas(df[list(TABLE_COLUMNS[name])], schema=pa.schema(fields), preserve_index=False)
 
@@ -117,15 +126,18 @@ def trip_owners(con: duckdb.DuckDBPyConnection) -> dict[str, str]:
     return dict(con.execute("SELECT trip_id, source_file FROM trips").fetchall())
 
 
-def commit_chunk(con, trips: list[dict], files: list[dict], rejects: list[dict], vins: dict[str, str],
-                 replaced_paths: list[str]) -> None:
+def commit_chunk(con, trips: list[dict], signal_rows: list[dict], files: list[dict], rejects: list[dict],
+                 vins: dict[str, str], replaced_paths: list[str]) -> None:
     """Record one chunk in a single transaction (see the module docstring)."""
     con.execute("BEGIN TRANSACTION")
     try:
         for path in replaced_paths:
+            con.execute("DELETE FROM trip_signals WHERE trip_id IN (SELECT trip_id FROM trips WHERE source_file = ?)",
+                        [path])
             con.execute("DELETE FROM trips WHERE source_file = ?", [path])
             con.execute("DELETE FROM rejects WHERE source_file = ?", [path])
         insert(con, "trips", frame("trips", trips))
+        insert(con, "trip_signals", frame("trip_signals", signal_rows))
         insert(con, "ingested_files", frame("ingested_files", files), replace=True)
         insert(con, "rejects", frame("rejects", rejects))
         seen = sorted({t["vehicle_id"] for t in trips})
@@ -140,8 +152,8 @@ def commit_chunk(con, trips: list[dict], files: list[dict], rejects: list[dict],
 
 
 def publish(con: duckdb.DuckDBPyConnection, store: Store) -> None:
-    """Publish all four tables from the catalog (each as a new generation)."""
-    order = {"trips": "vehicle_id, start_time", "vehicles": "vehicle_id", "ingested_files": "path",
+    """Publish every catalog table (each as a new generation)."""
+    order = {"trips": "vehicle_id, start_time", "trip_signals": "trip_id, signal", "vehicles": "vehicle_id", "ingested_files": "path",
              "rejects": "source_file, \"row\""}
     for name, columns in TABLE_COLUMNS.items():
         cols = ", ".join(f'"{c}"' for c in columns)

@@ -4,6 +4,14 @@ Profile rules win over the built-in grammar. A problem with one column
 (missing or unknown unit, a voltage without calibration) is a column error:
 that column is not used, the others are. A second column for a signal
 already read (e.g. an analog copy of an accelerometer) is only a warning.
+
+Read-lag companions: a polled logger reads the cells of one row one after
+another, so a cell may hold a value read some time before the row's time
+stamp. A column whose header is a signal column's header (as written, or its
+name without the bracketed unit) followed by ``@ms``, e.g. ``Wheel speed FL
+[km/h]`` with ``Wheel speed FL @ms``, holds that lag in integer milliseconds
+for each cell; ingest/skew.py moves each value to its own read time. A
+companion of a column that is not used is a warning.
 """
 
 from __future__ import annotations
@@ -46,6 +54,7 @@ class Column:
 @dataclass(frozen=True)
 class ColumnPlan:
     columns: dict[str, Column]  # canonical signal -> column
+    lags: dict[str, int]  # canonical signal -> index of its read-lag companion column (ms)
     ignored: list[str]  # headers not used: not recognised, or a second column for a signal (warnings)
     errors: list[str]  # column-level errors
 
@@ -55,7 +64,11 @@ def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:
     columns: dict[str, Column] = {}
     ignored: list[str] = []
     errors: list[str] = []
+    companions: list[tuple[int, str]] = []
     for index, text in enumerate(header):
+        if text.strip().lower().endswith(LAG_SUFFIX):
+            companions.append((index, text))
+            continue
         rec = grammar.recognise(text)
         name_only = grammar.split_unit(text)[0]
         rule = profile.rule_for(text, name_only)
@@ -80,4 +93,26 @@ def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:
                 errors.append(f"column {text!r}: {problem}; not used")
                 continue
         columns[signal] = Column(index, text, signal, unit, factor, rule)
-    return ColumnPlan(columns, ignored, errors)
+    return ColumnPlan(columns, _lag_columns(companions, columns, ignored), ignored, errors)
+
+
+#: Ends the header of a read-lag companion column (module docstring).
+LAG_SUFFIX = "@ms"
+
+
+def _lag_columns(companions: list[tuple[int, str]], columns: dict[str, Column], ignored: list[str]) -> dict[str, int]:
+    """signal -> companion column index; a companion of no used numeric column goes to ``ignored``."""
+    by_name: dict[str, str] = {}
+    for signal, col in columns.items():
+        if col.factor is not None or col.rule is not None and col.rule.v_per_g is not None:
+            by_name[col.header.strip().lower()] = signal
+            by_name.setdefault(grammar.split_unit(col.header)[0].strip().lower(), signal)
+    lags: dict[str, int] = {}
+    for index, text in companions:
+        base = text.strip()[: -len(LAG_SUFFIX)].strip().lower()
+        signal = by_name.get(base)
+        if signal is None or signal in lags:
+            ignored.append(f"{text} (a read-lag column of no numeric signal column read)")
+            continue
+        lags[signal] = index
+    return lags

@@ -22,8 +22,9 @@ from ingest.profile import Profile
 from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
 from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
 from ingest.signs import sign_warnings
+from ingest.skew import MAX_LAG_MS, align
 from ingest.timebase import parse_time
-from ingest.trips import trip_bounds, trip_quality
+from ingest.trips import signal_records, smallest_step, trip_bounds, trip_quality
 from tracktrue.ids import trip_id
 from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_UNITS, WHEEL_SPEED_COLUMNS
 
@@ -55,6 +56,7 @@ class LogTrip:
     samples: pa.Table
     info: dict  # trips-table fields except sample_file/source_*
     lines: np.ndarray  # 1-based line of each row (to reject the whole trip if it is stored already)
+    signal_rows: list[dict] = field(default_factory=list)  # trip_signals rows (ingest/trips.py signal_records)
 
 
 @dataclass
@@ -118,11 +120,11 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     cols = plan.columns
     if "time" not in cols:
         raise FileUnusable(f"no time column (header: {', '.join(log.header)[:200]})")
-    if not any(c in cols for c in WHEEL_SPEED_COLUMNS):
-        raise FileUnusable("no usable wheel speed column")
+    if not any(c in cols for c in (*WHEEL_SPEED_COLUMNS, "vehicle_speed")):
+        raise FileUnusable("no usable wheel speed or vehicle speed column")
     if result.n_rows == 0:
         raise FileUnusable("no data rows")
-    numeric = [c.index for c in cols.values() if c.signal in BOUNDS_SI]
+    numeric = [c.index for c in cols.values() if c.signal in BOUNDS_SI] + list(plan.lags.values())
     text = [c.index for c in cols.values() if c.signal not in BOUNDS_SI]
     parsed = parse_rows(log, numeric, text)
     if parsed.structural_rejects:
@@ -156,6 +158,8 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
             out = ~np.isnan(si) & ~((si >= lo) & (si <= hi))
         flags.flag(out, "out of range", _range_message(col, raw_values, si, lo, hi))
         values[sig] = si
+    lags = {sig: _lag_values(parsed, log.header[index], index, decimal_comma, flags)
+            for sig, index in plan.lags.items() if sig in values}
 
     switches: dict[str, tuple[np.ndarray, np.ndarray]] = {}
     for sig in SWITCH_SIGNALS:
@@ -177,18 +181,26 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     result.reject_kinds.update(flags.kinds)
     if len(kept) == 0:
         return
-    result.warnings.extend(sign_warnings({s: v[kept] for s, v in values.items()}))
     codes, us = ident.codes[kept], tr.us[kept]
     bounds = trip_bounds(codes, us, gap_s)
     ids = [trip_id(ident.ids[codes[a]], pd.Timestamp(int(us[a]), unit="us", tz="UTC")) for a, _ in bounds]
     lengths = np.array([b - a for a, b in bounds])
-    table = _sample_table(kept, ident, np.repeat(np.arange(len(bounds)), lengths), ids, us, values, switches, dtc)
+    logged = {s: v[kept] for s, v in values.items()}  # as logged, in (vehicle, time) order
+    stored = _aligned(logged, {s: lag[kept] for s, lag in lags.items()}, us, bounds)
+    result.warnings.extend(sign_warnings(stored, us / 1e6))
+    if lags:
+        result.warnings.append("values moved to their read times by the read-lag columns of "
+                               + ", ".join(sorted(lags)))
+    table = _sample_table(ident, np.repeat(np.arange(len(bounds)), lengths), ids, us,
+                          stored, {s: (on[kept], m[kept]) for s, (on, m) in switches.items()},
+                          dtc.take(pa.array(kept)) if dtc is not None else None, codes)
     present = [s for s in (*values, *switches) if s != "odometer"] + (["dtc"] if dtc is not None else [])
     for (a, b), tid in zip(bounds, ids):
         rows = kept[a:b]
         result.trips.append(_trip(table.slice(a, b - a), tid, ident.ids[codes[a]], us[a:b],
-                                  {s: v[rows] for s, v in values.items()},
-                                  {s: m[rows] for s, (_, m) in switches.items()}, present, parsed.lines[rows]))
+                                  {s: v[a:b] for s, v in logged.items()},
+                                  {s: m[rows] for s, (_, m) in switches.items()}, present, parsed.lines[rows],
+                                  {s: lag[rows] for s, lag in lags.items()}))
 
 
 def _opt(parsed, cols: dict[str, Column], sig: str):
@@ -240,28 +252,53 @@ def _time_order(flags: _Flags, codes: np.ndarray, us: np.ndarray) -> np.ndarray:
     return order[~(dup | back)]
 
 
-def _sample_table(kept, ident, trip_index, ids, us, values, switches, dtc) -> pa.Table:
-    n = len(kept)
-    take = pa.array(kept)
+def _lag_values(parsed, header: str, index: int, decimal_comma: bool, flags: _Flags) -> np.ndarray:
+    """A read-lag companion column in ms; a non-number or a lag outside 0..MAX_LAG_MS rejects its row."""
+    arr = parsed.columns[index]
+    lag, not_number = to_float(arr, decimal_comma)
+    flags.flag(not_number, "not a number", _quoting(header, arr, "is not a number"))
+    with np.errstate(invalid="ignore"):
+        out = np.isfinite(lag) & ~((lag >= 0) & (lag <= MAX_LAG_MS))
+    flags.flag(out, "out of range", lambda idx: [f"{header}: a read lag of {lag[i]:g} ms is outside "
+                                                 f"0..{MAX_LAG_MS:g} ms" for i in idx])
+    return lag
+
+
+def _aligned(logged: dict[str, np.ndarray], lags: dict[str, np.ndarray], us: np.ndarray,
+             bounds: list[tuple[int, int]]) -> dict[str, np.ndarray]:
+    """The values to store: each lagged signal moved to its read times, trip by trip (ingest/skew.py)."""
+    out = dict(logged)
+    for sig, lag in lags.items():
+        aligned = logged[sig].copy()
+        for a, b in bounds:
+            aligned[a:b] = align(us[a:b], logged[sig][a:b], lag[a:b], smallest_step(logged[sig][a:b]))
+        out[sig] = aligned
+    return out
+
+
+def _sample_table(ident, trip_index, ids, us, values, switches, dtc, codes) -> pa.Table:
+    """SAMPLE_SCHEMA rows from value arrays already in (vehicle, time) order."""
+    n = len(us)
     cols: dict[str, pa.Array] = {
-        "vehicle_id": pa.array(ident.ids, pa.string()).take(pa.array(ident.codes[kept])),
+        "vehicle_id": pa.array(ident.ids, pa.string()).take(pa.array(codes)),
         "trip_id": pa.array(ids, pa.string()).take(pa.array(trip_index)),
         "time": pa.array(us, pa.timestamp("us", tz="UTC")),
     }
     for sig in NUMERIC_SIGNALS:
-        cols[sig] = pa.array(values[sig][kept], pa.float64()) if sig in values else pa.nulls(n, pa.float64())
+        cols[sig] = pa.array(values[sig], pa.float64()) if sig in values else pa.nulls(n, pa.float64())
     for sig in SWITCH_SIGNALS:
         if sig in switches:
             on, missing = switches[sig]
-            cols[sig] = pa.array(on[kept], pa.bool_(), mask=missing[kept])
+            cols[sig] = pa.array(on, pa.bool_(), mask=missing)
         else:
             cols[sig] = pa.nulls(n, pa.bool_())
-    cols["dtc"] = dtc.take(take) if dtc is not None else pa.nulls(n, pa.string())
+    cols["dtc"] = dtc if dtc is not None else pa.nulls(n, pa.string())
     return pa.Table.from_arrays([cols[f.name] for f in SAMPLE_SCHEMA], schema=SAMPLE_SCHEMA)
 
 
 def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dict, missing: dict,
-          present: list[str], lines: np.ndarray) -> LogTrip:
+          present: list[str], lines: np.ndarray, lags: dict) -> LogTrip:
+    """One trip's catalog fields and trip_signals rows, from its values as logged (before alignment)."""
     masks = [np.isnan(values[s]) for s in present if s in values] + [missing[s] for s in present if s in missing]
     if "dtc" in present:
         masks.append(samples.column("dtc").is_null().to_numpy(zero_copy_only=False))
@@ -281,4 +318,6 @@ def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dic
         "odometer_start_km": float(known[0]) if len(known) else float("nan"),
         "odometer_end_km": float(known[-1]) if len(known) else float("nan"),
     }
-    return LogTrip(vehicle, tid, samples, info, lines)
+    signal_rows = [{"trip_id": tid, **r} for r in signal_records(us, {s: v for s, v in values.items()
+                                                                      if s != "odometer"}, lags)]
+    return LogTrip(vehicle, tid, samples, info, lines, signal_rows)

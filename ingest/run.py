@@ -181,6 +181,7 @@ class _Run:
     def _reset(self) -> None:
         self.parts: dict[tuple[int, str], list] = defaultdict(list)
         self.trips: list[dict] = []
+        self.signal_rows: list[dict] = []
         self.files: list[dict] = []
         self.rejects: list[dict] = []
         self.vins: dict[str, str] = {}
@@ -274,6 +275,7 @@ class _Run:
             month = info["start_time"].strftime("%Y-%m")
             self.parts[(vehicle_bucket(trip.vehicle_id), month)].append((info, trip.samples))
             self.trips.append(info)
+            self.signal_rows += trip.signal_rows
             self.trip_owner[trip.trip_id] = key
             self.pending_rows += trip.samples.num_rows
         self.vins.update(result.vins)
@@ -297,7 +299,7 @@ class _Run:
                 info["sample_file"] = catalog.relative(self.store, path)
         for job in jobs:  # every part is on disk before the commit that refers to it
             job.result()
-        catalog.commit_chunk(self.con, self.trips, self.files, self.rejects, self.vins, self.replaced)
+        catalog.commit_chunk(self.con, self.trips, self.signal_rows, self.files, self.rejects, self.vins, self.replaced)
         log.debug("committed %d file(s), %d trip(s)", len(self.files), len(self.trips))
         self.by_path, self.by_hash = catalog.file_states(self.con)
         self._reset()

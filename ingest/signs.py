@@ -4,7 +4,9 @@ ISO 8855 (x forward, y left, z up): yaw rate and lateral acceleration are
 positive in a left turn, where the right wheels roll faster than the left
 ones, so yaw rate r has the sign of v_rr - v_rl (kinematic yaw from a
 non-steered axle, r = (v_right - v_left) / track) and a_y the sign of v * r
-(steady turning, a_y = v * r). A log whose signals correlate the other way
+(steady turning, a_y = v * r); longitudinal acceleration is positive
+forward, so a_x has the sign of dv/dt (some tools log deceleration as
+positive). A log whose signals correlate the other way
 most likely uses the opposite convention; ingest warns and a profile can set
 ``invert = true``. It never flips a sign on its own.
 """
@@ -21,8 +23,15 @@ INVERTED_BELOW = -0.5
 MIN_SAMPLES = 50
 
 
-def sign_warnings(values: dict[str, np.ndarray]) -> list[str]:
-    """Warnings for yaw rate / lateral acceleration signs that contradict the wheels."""
+#: dv/dt is taken only between rows closer than this (not across a gap or from one trip to the next).
+DERIVATIVE_MAX_DT_S = 2.0
+
+
+def sign_warnings(values: dict[str, np.ndarray], t_s: np.ndarray) -> list[str]:
+    """Warnings for yaw rate, lateral and longitudinal acceleration signs that contradict the wheels.
+
+    ``values`` SI signals and ``t_s`` their times in seconds, rows in (vehicle, time) order.
+    """
     out = []
     yaw = values.get("yaw_rate")
     rear = [values.get("wheel_speed_rl"), values.get("wheel_speed_rr")]
@@ -36,6 +45,22 @@ def sign_warnings(values: dict[str, np.ndarray]) -> list[str]:
         if _correlation(ay, mean_known(wheels) * yaw, min_abs_b=0.5) < INVERTED_BELOW:
             out.append("accel_lat correlates negatively with speed x yaw_rate: one of the two has the opposite "
                        "sign convention (ISO 8855: both positive in a left turn); a profile can set invert = true")
+    ax = values.get("accel_long")
+    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
+    if ax is not None and speeds and len(t_s) > 2:
+        if _correlation(ax, _derivative(mean_known(speeds), t_s), min_abs_b=0.3) < INVERTED_BELOW:
+            out.append("accel_long correlates negatively with the wheel speeds' dv/dt: it looks positive in "
+                       "deceleration (ISO 8855 wants forward); a profile can set invert = true")
+    return out
+
+
+def _derivative(v: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+    """Central difference (v[i+1] - v[i-1]) / (t[i+1] - t[i-1]); NaN across gaps and at the ends."""
+    out = np.full(v.size, np.nan)
+    span = t_s[2:] - t_s[:-2]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        d = (v[2:] - v[:-2]) / span
+    out[1:-1] = np.where((span > 0) & (span <= 2 * DERIVATIVE_MAX_DT_S), d, np.nan)
     return out
 
 

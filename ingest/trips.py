@@ -3,7 +3,8 @@
 A log may hold several ignition cycles; a time gap longer than ``gap_s``
 (default 300 s) between consecutive rows of one vehicle starts a new trip.
 The quality figures let features/ gate on sample rate and resolution
-(DESIGN.md: a 1 km/h step is not a 0.01 km/h step).
+(DESIGN.md: a 1 km/h step is not a 0.01 km/h step); ``signal_records`` gives
+the rows of the published ``trip_signals`` table.
 """
 
 from __future__ import annotations
@@ -11,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from tracktrue.schema import NUMERIC_SIGNALS, WHEEL_SPEED_COLUMNS
+from tracktrue.signal_quality import MOVING_MPS, fresh_rate
 
 
 def trip_bounds(codes: np.ndarray, us: np.ndarray, gap_s: float) -> list[tuple[int, int]]:
@@ -48,7 +50,7 @@ def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np
     missing_fraction = float(np.mean([m.mean() for m in missing])) if missing else float("nan")
     out = {"distance_km": distance_km, "sample_rate_hz": rate, "missing_fraction": missing_fraction}
     for sig in NUMERIC_SIGNALS:
-        out[f"resolution_{sig}"] = _resolution(values[sig]) if sig in values else float("nan")
+        out[f"resolution_{sig}"] = smallest_step(values[sig]) if sig in values else float("nan")
     return out
 
 
@@ -59,8 +61,40 @@ def mean_known(signals: list[np.ndarray]) -> np.ndarray:
     return np.where(known > 0, np.nansum(stack, axis=0) / np.maximum(known, 1), np.nan)
 
 
-def _resolution(v: np.ndarray) -> float:
+def smallest_step(v: np.ndarray) -> float:
+    """Smallest positive change between consecutive known values (the logger's step), NaN if none."""
     known = v[np.isfinite(v)]
     steps = np.abs(np.diff(known))
     steps = steps[steps > 0]
     return float(steps.min()) if len(steps) else float("nan")
+
+
+def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str, np.ndarray]) -> list[dict]:
+    """One ``trip_signals`` row per canonical numeric signal of one trip, from its values as logged.
+
+    rate_hz and stale_frac as tracktrue.signal_quality.fresh_rate measures them
+    while moving (mean of the known wheel speeds, else the vehicle speed, at
+    least 3 m/s; the whole trip when no speed is logged), step_si the smallest
+    non-zero step in SI units, read_lag_s the median read lag of the signal's
+    companion column (ingest/skew.py; NaN without one). A signal the log lacks,
+    or whose cells are all empty, has present False and NaN figures.
+    """
+    t = (us - us[0]) / 1e6
+    wheels = [values[c] for c in WHEEL_SPEED_COLUMNS if c in values]
+    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
+    if speeds:
+        with np.errstate(invalid="ignore"):
+            moving = mean_known(speeds) >= MOVING_MPS
+    else:
+        moving = np.ones(t.size, bool)
+    rows = []
+    for sig in NUMERIC_SIGNALS:
+        v = values.get(sig)
+        present = v is not None and bool(np.isfinite(v).any())
+        rate, stale = fresh_rate(t, v, moving) if present else (float("nan"), float("nan"))
+        lag = lags.get(sig)
+        known_lag = lag[np.isfinite(lag)] if lag is not None else np.array([])
+        rows.append({"signal": sig, "present": present, "rate_hz": rate,
+                     "step_si": smallest_step(v) if present else float("nan"), "stale_frac": stale,
+                     "read_lag_s": float(np.median(known_lag)) / 1000.0 if known_lag.size else float("nan")})
+    return rows

@@ -65,6 +65,12 @@ TRIPS_COLUMNS: tuple[str, ...] = (
     "source_file",
 )
 REJECTS_COLUMNS: tuple[str, ...] = ("source_file", "row", "reason")
+#: Published by ingest: one row per trip and canonical numeric signal, from the
+#: values as logged (ingest/trips.py signal_records): fresh values per second
+#: while moving, smallest non-zero step (SI), share of stale repeats, median
+#: read lag in s (NaN without a read-lag column).
+TRIP_SIGNALS_COLUMNS: tuple[str, ...] = ("trip_id", "signal", "present", "rate_hz", "step_si", "stale_frac",
+                                         "read_lag_s")
 
 #: suspected_component vocabulary of the ranking output.
 COMPONENTS: tuple[str, ...] = (
@@ -107,8 +113,13 @@ CORE_FEATURES: tuple[str, ...] = (
 )
 
 #: Vehicle statuses of the ranking, most urgent first. ``lamp_lit`` vehicles
-#: need service whatever their score and are shown, never hidden.
-STATUSES: tuple[str, ...] = ("lamp_lit", "inspect", "watch", "ok", "insufficient_data")
+#: need service whatever their score and are shown, never hidden. ``snoozed``:
+#: an alert the manager put off until a date (models/stability.py);
+#: ``verifying``: repaired, waiting for enough trips to confirm the repair;
+#: ``insufficient_data`` is never shown as ``ok``.
+STATUSES: tuple[str, ...] = ("lamp_lit", "inspect", "watch", "snoozed", "verifying", "ok", "insufficient_data")
+#: The statuses that are alerts (an inspection or a closer look is asked for).
+ALERT_STATUSES: tuple[str, ...] = ("lamp_lit", "inspect", "watch")
 
 #: Published by models/ (one row per vehicle, ordered by rank). Starts with the
 #: ranking contract; the rest serves the dashboard and `tracktrue vehicle`.
@@ -119,7 +130,32 @@ VEHICLE_STATUS_COLUMNS: tuple[str, ...] = (
     "lamp_on",
     "n_trips",
     "as_of",
+    "raw_status",  # the scorer's status before hysteresis, verification, labels and snoozes
+    "status_note",  # why the status differs from raw_status (held, verifying, snoozed, ...)
+    "label",  # e.g. a no-fault-found inspection of the alert
+    "snoozed_until",
+    "snooze_reason",
 )
+
+#: Published by models/: one row per vehicle and scoring run (appended), the
+#: memory that hysteresis and ``tracktrue rank --changes`` read.
+STATUS_HISTORY_COLUMNS: tuple[str, ...] = (
+    "run_id",
+    "created_at",
+    "as_of",
+    "vehicle_id",
+    "raw_status",
+    "held_status",  # after hysteresis, before verification and snoozes
+    "status",  # as published
+    "score",
+    "suspected_component",
+    "flagged_since",
+    "last_trip",
+)
+
+#: Snoozes (``tracktrue snooze`` and the dashboard), published by ``tracktrue update`` as ``snoozes``.
+SNOOZE_COLUMNS: tuple[str, ...] = ("vehicle_id", "until", "reason", "snoozed_status", "snoozed_component",
+                                   "created_at")
 
 #: Published by models/: one row per scored trip (plus ``z_<feature>`` columns,
 #: the peer-normalised value of each model feature).
