@@ -36,6 +36,7 @@ class Column:
     si_per_unit: float = 1.0  # one export unit in SI
     decimals: int = 0  # logged resolution 10**-decimals in the export unit
     polled_decimals: int | None = None  # coarser resolution on a polled logger
+    read_lag: bool = False  # the companion column: the signal's read lag behind the row's stamp, integer ms
 
 
 @dataclass(frozen=True)
@@ -47,6 +48,8 @@ class ExportStyle:
     metadata: bool
     columns: tuple[Column, ...]
     analog_columns: tuple[Column, ...]
+    #: A polled log carries each signal's read lag in a companion column (READ_LAG_SUFFIX).
+    read_lag_columns: bool = False
 
     def column(self, signal: str) -> Column:
         return next(c for c in self.columns if c.signal == signal)
@@ -77,6 +80,7 @@ STYLES: dict[str, ExportStyle] = {
          Column("brake", "Brake Switch"), Column("lamp_abs", "ABS Lamp"), Column("lamp_esc", "ESC Lamp"),
          Column("dtc", "DTC")),
         (Column("accel_long", "Long Accel Raw [V]", 1.0, 3), Column("accel_lat", "Lat Accel Raw [V]", 1.0, 3)),
+        read_lag_columns=True,
     ),
     "B": ExportStyle(
         "B", ";", True, True, True,
@@ -93,6 +97,28 @@ STYLES: dict[str, ExportStyle] = {
          Column("accel_lat", "Lateral acceleration raw (V)", 1.0, 3)),
     ),
 }
+
+
+#: A read-lag companion's header: its signal's header without the unit, then this.
+READ_LAG_SUFFIX = " @ms"
+
+
+def read_lag_header(header: str) -> str:
+    """``Wheel Speed FL [km/h]`` → ``Wheel Speed FL @ms`` (the header of the signal's read-lag column)."""
+    name, bracket, _ = header.partition(" [")
+    return (name if bracket else header) + READ_LAG_SUFFIX
+
+
+def logged_columns(style: ExportStyle, signals, analog: bool, read_lags: bool) -> tuple[Column, ...]:
+    """The columns of a file in ``style`` holding ``signals`` (time and VIN always), each followed by its
+    read-lag companion when ``read_lags`` and the style carries them."""
+    chosen = []
+    for col in style.columns + (style.analog_columns if analog else ()):
+        if col.signal in ("time", "vin") or col.signal in signals:
+            chosen.append(col)
+            if read_lags and style.read_lag_columns and col in style.columns and col.signal not in ("time", "vin"):
+                chosen.append(Column(col.signal, read_lag_header(col.header), read_lag=True))
+    return tuple(chosen)
 
 
 #: Numbers within this many resolution steps of zero are formatted by table look-up.
@@ -258,7 +284,8 @@ _CHOICE_SIGNALS = frozenset({"dtc", "brake", "lamp_abs", "lamp_esc"})
 
 
 def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, start_ms: np.ndarray,
-                time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool) -> list[np.ndarray | bytes]:
+                time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool,
+                read_lag_ms: dict[str, np.ndarray] | None = None) -> list[np.ndarray | bytes]:
     """A row's text in file order, each cell with its delimiter (or the line end): words (n,) or (n, k)
     of uint64, characters (n, width) of uint8, or bytes the same on every row."""
     point = "," if style.decimal_comma else "."
@@ -267,9 +294,11 @@ def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, sta
     k = 0
     while k < len(chosen):
         col, sep = chosen[k], seps[k]
-        if col.signal in _CHOICE_SIGNALS:
+        if col.read_lag:
+            pieces.append(_number_cells(read_lag_ms[col.signal], 1.0, 0, point, sep))
+        elif col.signal in _CHOICE_SIGNALS:
             run = k
-            while run < len(chosen) and chosen[run].signal in _CHOICE_SIGNALS:
+            while run < len(chosen) and chosen[run].signal in _CHOICE_SIGNALS and not chosen[run].read_lag:
                 run += 1
             choices, codes = [], []
             for c in chosen[k:run]:
@@ -284,7 +313,7 @@ def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, sta
             pieces.append(_choice_cells(choices, codes, seps[k:run]))
             k = run
             continue
-        if col.signal == "time":
+        elif col.signal == "time":
             if style.relative_time:
                 pieces.append(_seconds_cells(time_ms, point, sep))
             else:
@@ -345,15 +374,18 @@ def _metadata(style: ExportStyle, chosen: tuple[Column, ...], vehicle_id: str, s
 
 def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, vin: str, starts_ms: list[int],
                     lengths: list[int], time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool,
-                    analog: bool) -> list[int]:
+                    analog: bool, read_lag_ms: dict[str, np.ndarray] | None = None) -> list[int]:
     """Write several trips of one vehicle, one file each; returns the bytes written per file.
 
     ``time_ms`` (from each trip's start) and the canonical SI ``columns`` hold
-    the trips' rows one after the other, ``lengths`` rows each. Rows are
-    formatted in fixed batches that may span trips, so a short trip costs no
-    extra array calls; each file gets its slices of the batches' records.
+    the trips' rows one after the other, ``lengths`` rows each; a signal not
+    in ``columns`` has no column (a telematics unit records few). ``polled``
+    writes the coarser polled resolutions; ``read_lag_ms`` (a polled logger's
+    per-cell read lags) adds companion columns where the style carries them.
+    Rows are formatted in fixed batches that may span trips, so a short trip
+    costs no extra array calls; each file gets its slices of the batches' records.
     """
-    chosen = style.columns + (style.analog_columns if analog else ())
+    chosen = logged_columns(style, columns, analog, read_lag_ms is not None)
     ends = np.cumsum(lengths)
     row_start_ms = np.repeat(np.asarray(starts_ms, dtype=np.int64), lengths)
 
@@ -361,7 +393,8 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
     def batch(k: int) -> np.ndarray:
         rows = slice(k * _BATCH_ROWS, min((k + 1) * _BATCH_ROWS, int(ends[-1])))
         pieces = _row_pieces(style, chosen, vin=vin, start_ms=row_start_ms[rows], time_ms=time_ms[rows],
-                             columns={name: v[rows] for name, v in columns.items()}, polled=polled)
+                             columns={name: v[rows] for name, v in columns.items()}, polled=polled,
+                             read_lag_ms=None if read_lag_ms is None else {n: v[rows] for n, v in read_lag_ms.items()})
         return _rows(pieces, rows.stop - rows.start)
 
     sizes = []
@@ -380,7 +413,9 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
 
 
 def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str, start_ms: int, time_ms: np.ndarray,
-                   columns: dict[str, np.ndarray], polled: bool, analog: bool) -> int:
+                   columns: dict[str, np.ndarray], polled: bool, analog: bool,
+                   read_lag_ms: dict[str, np.ndarray] | None = None) -> int:
     """Write one trip's rows in ``style``; returns the bytes written. ``columns`` are canonical SI."""
     return write_trips_csv([path], style, vehicle_id=vehicle_id, vin=vin, starts_ms=[start_ms],
-                           lengths=[len(time_ms)], time_ms=time_ms, columns=columns, polled=polled, analog=analog)[0]
+                           lengths=[len(time_ms)], time_ms=time_ms, columns=columns, polled=polled, analog=analog,
+                           read_lag_ms=read_lag_ms)[0]

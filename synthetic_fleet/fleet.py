@@ -17,13 +17,14 @@ import shutil
 import time
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import nullcontext
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from tqdm import tqdm
 
+from synthetic_fleet.config import SimConfig, sim_config
 from synthetic_fleet.export import STYLES, ExportStyle, write_trips_csv
 from synthetic_fleet.faults import (
     LAMP_SEVERITY,
@@ -32,7 +33,7 @@ from synthetic_fleet.faults import (
     TYRE_DISTRACTOR_KINDS,
     parse_fault,
 )
-from synthetic_fleet.logger import LOGGERS, LoggerProfile
+from synthetic_fleet.logger import LOGGERS, LoggerProfile, logger_rate_hz
 from synthetic_fleet.platforms import PLATFORMS, Platform, platform
 from synthetic_fleet.scenario import DEPOTS, FLEET_NAME, Depot, synthetic_vin, vehicle_id
 from synthetic_fleet.sensors import SensorHealth, TripCondition
@@ -59,6 +60,8 @@ TRIP_MEDIAN_MIN, TRIP_SIGMA, TRIP_MIN_MAX_MIN = 9.0, 0.5, (4.0, 45.0)
 DRIVE_P = {"town": 0.35, "suburban": 0.25, "highway": 0.10, "mixed": 0.30}
 TYRE_WEAR_PER_DAY = 1.5e-5  # radius, all wheels alike
 UNRECORDED_SHARE = 0.3  # tyre services the workshop did not write down
+#: loggers.csv, the evaluation's ground truth of each vehicle's logger (ingest never reads it).
+LOGGERS_COLUMNS = ("vehicle_id", "logger_kind", "wheel_sensor_type", "rate_hz", "wheel_speed_step_kph")
 
 
 @dataclass(frozen=True)
@@ -125,6 +128,7 @@ class FleetPlan:
     days: int
     seed: int
     vehicles: list[VehiclePlan]
+    config: SimConfig
     trips: dict[str, list[TripPlan]] = field(default_factory=dict)
     lamp_dates: dict[str, dt.date | None] = field(default_factory=dict)
 
@@ -139,6 +143,27 @@ def _roles(n: int, rng: np.random.Generator) -> list[str | None]:
     names = [f"{k}_{POSITIONS[rng.integers(4)]}" if k in PER_WHEEL_KINDS else k for k in faults]
     roles: list[str | None] = names + [None] * (n - len(names))
     return [roles[i] for i in rng.permutation(n)]
+
+
+def _logger_kinds(n: int, config: SimConfig, rng: np.random.Generator) -> list[str]:
+    """One logger kind per vehicle: the configuration's shares in whole vehicles, the rest bus capture."""
+    n_telematics = int(round(config.telematics_share * n))
+    n_polled = min(int(round(config.polled_share * n)), n - n_telematics)
+    kinds = ["telematics"] * n_telematics + ["polled"] * n_polled
+    kinds += ["bus_capture"] * (n - len(kinds))
+    return [kinds[i] for i in rng.permutation(n)]
+
+
+def _vehicle_logger(kind: str, config: SimConfig, rng: np.random.Generator) -> LoggerProfile:
+    """The logger fitted to one vehicle: its kind's artefacts at this vehicle's rate and resolution."""
+    base = LOGGERS[kind]
+    if kind == "polled":
+        return replace(base, rate_hz=float(rng.choice(config.polled_rates_hz)),
+                       wheel_step_kph=float(rng.choice(config.polled_wheel_steps_kph)),
+                       stale_prob=config.polled_stale_prob)
+    if kind == "telematics":
+        return replace(base, rate_hz=config.telematics_rate_hz)
+    return replace(base, rate_factor=config.bus_rate_factor, wheel_step_kph=config.bus_wheel_step_kph)
 
 
 def _fault_plan(name: str, days: int, lamp_within: bool, rng: np.random.Generator) -> FaultPlan:
@@ -201,12 +226,16 @@ def _tyre_factor(events: tuple[TyreEvent, ...], day: float, health: SensorHealth
     return radius * (1.0 - TYRE_WEAR_PER_DAY * day) / health.wheel_radius_factor
 
 
-def plan_fleet(n_vehicles: int, days: int, seed: int, start: dt.date = dt.date(2026, 3, 2)) -> FleetPlan:
-    """Vehicles, their faults and service events, every trip with its condition, and lamp dates."""
+def plan_fleet(n_vehicles: int, days: int, seed: int, start: dt.date = dt.date(2026, 3, 2),
+               config: SimConfig | str | None = None) -> FleetPlan:
+    """Vehicles, their loggers, faults and service events, every trip with its condition, and lamp dates.
+    ``config`` is a SimConfig or its name (default: the tuning configuration, config.DEFAULT)."""
     if n_vehicles < 1 or days < 1:
         raise UserError(f"a fleet needs at least one vehicle and one day (got {n_vehicles} vehicles, {days} days)")
+    config = sim_config(config)
     fleet_rng = np.random.default_rng([seed, 1_000_003])
     roles = _roles(n_vehicles, fleet_rng)
+    logger_kinds = _logger_kinds(n_vehicles, config, fleet_rng)
     depot_numbers = {d.code: 0 for d in DEPOTS}
     vehicles = []
     sensor_faults_seen = 0
@@ -227,12 +256,12 @@ def plan_fleet(n_vehicles: int, days: int, seed: int, start: dt.date = dt.date(2
         if fault is not None and parse_fault(fault.name).kind == "steer_offset" and fault.step_severity is not None:
             rows.append({"vehicle_id": vid, "date": (start + dt.timedelta(days=int(fault.onset_day))).isoformat(),
                          "kind": "wheel_alignment", "component": "front_axle", "note": "four-wheel alignment"})
-        logger = LOGGERS["polled" if rng.random() < depot.polled_share else "bus"]
+        logger = _vehicle_logger(logger_kinds[i], config, np.random.default_rng([seed, i, 3]))
         vehicles.append(VehiclePlan(i, vid, spec, depot, synthetic_vin(spec.name, depot, 1000 * seed % 997_000 + i,
                                                                            int(rng.integers(0, 6))),
                                     logger, STYLES[depot.export_style], SensorHealth.draw(rng), fault, events,
                                     tuple(rows)))
-    plan = FleetPlan(start, days, seed, vehicles)
+    plan = FleetPlan(start, days, seed, vehicles, config)
     for v in vehicles:
         plan.trips[v.vehicle_id], plan.lamp_dates[v.vehicle_id] = _vehicle_trips(v, start, days, seed)
     return plan
@@ -313,7 +342,7 @@ class FleetSummary:
             f"lamps lit within the period: {self.lamps_lit}; tyre distractors: {self.distractors}",
             f"  logs:            {self.out / 'logs'}",
             f"  vehicles:        {self.out / 'vehicles.csv'}",
-            f"  ground truth:    {self.out / 'truth.csv'}",
+            f"  ground truth:    {self.out / 'truth.csv'}, {self.out / 'loggers.csv'}",
             f"  service history: {self.out / 'service_history.csv'}",
         ])
 
@@ -330,7 +359,7 @@ def _prepare_out(out: Path) -> None:
     (out / "logs").mkdir(parents=True, exist_ok=True)
 
 
-def _write_tables(out: Path, plan: FleetPlan) -> None:
+def _write_tables(out: Path, plan: FleetPlan, fleet_rate_hz: float) -> None:
     registry = pd.DataFrame([{"vehicle_id": v.vehicle_id, **v.spec.registry_row(), "depot": v.depot.name,
                               "vin": v.vin} for v in plan.vehicles])
     registry.to_csv(out / "vehicles.csv", index=False, lineterminator="\n")
@@ -341,6 +370,12 @@ def _write_tables(out: Path, plan: FleetPlan) -> None:
     } for v in plan.vehicles if v.fault is not None], columns=["vehicle_id", "fault", "component", "onset_date",
                                                                 "lamp_date"])
     truth.to_csv(out / "truth.csv", index=False, lineterminator="\n")
+    loggers = pd.DataFrame([{
+        "vehicle_id": v.vehicle_id, "logger_kind": v.logger.name, "wheel_sensor_type": v.spec.wheel_sensor_kind,
+        "rate_hz": logger_rate_hz(v.logger, fleet_rate_hz),
+        "wheel_speed_step_kph": "" if v.logger.name == "telematics" else v.logger.wheel_step_kph,
+    } for v in plan.vehicles], columns=LOGGERS_COLUMNS)
+    loggers.to_csv(out / "loggers.csv", index=False, lineterminator="\n")
     history = pd.DataFrame([r for v in plan.vehicles for r in v.service_rows],
                            columns=["vehicle_id", "date", "kind", "component", "note"])
     history.sort_values(["date", "vehicle_id", "component"], kind="stable").to_csv(
@@ -368,8 +403,8 @@ def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: f
         sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in group],
                                 v.style, vehicle_id=v.vehicle_id, vin=v.vin,
                                 starts_ms=[t.start.value // 1_000_000 for t in group], lengths=sims.lengths,
-                                time_ms=sims.time_ms, columns=sims.columns, polled=v.logger.name == "polled",
-                                analog=analog)
+                                time_ms=sims.time_ms, columns=sims.columns, polled=v.logger.name != "bus_capture",
+                                analog=analog, read_lag_ms=sims.read_lag_ms)
         n_samples += sims.n_samples
         n_bytes += sum(sizes)
     return n_samples, n_bytes, len(trips)
@@ -402,8 +437,13 @@ def _default_workers(plan: FleetPlan, rate_hz: float) -> int:
 
 def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: float = 10.0,
                    start: dt.date = dt.date(2026, 3, 2), progress: bool = False,
-                   analog_accel: bool = False, workers: int | None = None) -> FleetSummary:
+                   analog_accel: bool = False, workers: int | None = None,
+                   config: SimConfig | str | None = None) -> FleetSummary:
     """Simulate the fleet and write its CSV logs and tables under ``out``.
+
+    ``rate_hz`` is the bus-capture loggers' sample rate (times the
+    configuration's factor); polled and telematics loggers keep their own.
+    ``config`` is a SimConfig or its name ("tuning", the default, or "held-out").
 
     ``workers`` counts the processes that simulate, this one included. The
     files are byte-identical for a seed whatever ``workers`` is (each trip's
@@ -414,7 +454,7 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
         raise UserError(f"sample rate must be positive, got {rate_hz}")
     t0 = time.perf_counter()
     out = Path(out)
-    plan = plan_fleet(n_vehicles, days, seed, start)
+    plan = plan_fleet(n_vehicles, days, seed, start, config)
     _prepare_out(out)
     workers = workers or _default_workers(plan, rate_hz)
     # Largest vehicles first, so that the last job to finish is a small one.
@@ -436,7 +476,7 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
         results += [future.result() for future in futures if not future.cancelled()]
     bar.close()
     n_samples, n_bytes, n_files = (sum(r[i] for r in results) for i in range(3))
-    _write_tables(out, plan)
+    _write_tables(out, plan, rate_hz)
     faults = [v.fault.name for v in plan.vehicles if v.fault and parse_fault(v.fault.name).is_sensor_fault]
     summary = FleetSummary(out, FLEET_NAME, n_vehicles, days, n_files, n_samples, n_bytes, tuple(faults),
                            sum(d is not None for d in plan.lamp_dates.values()),

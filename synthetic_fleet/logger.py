@@ -1,9 +1,16 @@
-"""What a data logger does to the signals: its rate, timestamp jitter, gaps, dropped,
-duplicated and stale rows, missing cells.
+"""What a data logger does to the signals: its rate, resolution, timestamp jitter, gaps, dropped,
+duplicated and stale rows, missing cells, and which signals it records at all.
 
-Two logger kinds of our scenario (DESIGN.md, "Logger kinds"): a bus-capture
-logger at the fleet's sample rate and a polled logger at half of it whose cells
-are read up to 0.3 s apart, some stale.
+Three logger kinds (DESIGN.md, "Logger kinds"), the ground truth's vocabulary:
+
+- ``bus_capture`` records the broadcast bus at the fleet's sample rate (times the
+  configuration's factor) with fine resolution.
+- ``polled`` asks the ABS/ESC module for manufacturer PIDs one after another, a
+  row every 1/rate s: each cell was read 50–300 ms before the row's time stamp
+  (the read lags are logged beside the values in export style A), some cells
+  repeat the previous reading (stale), wheel speeds come in 0.1–1 km/h steps.
+  The simulation runs on a ``POLL_GRID_HZ`` grid so that read times are real.
+- ``telematics`` records vehicle speed, the lamps and trouble codes only.
 """
 
 from __future__ import annotations
@@ -14,91 +21,146 @@ import numpy as np
 
 from synthetic_fleet.draws import bernoulli_successes
 from synthetic_fleet.segments import Segments
-from tracktrue.schema import NUMERIC_SIGNALS
+from tracktrue.schema import NUMERIC_SIGNALS, WHEEL_SPEED_COLUMNS
+from tracktrue.units import KPH_MPS
+
+LOGGER_KINDS: tuple[str, ...] = ("bus_capture", "polled", "telematics")
+#: Simulation grid of a polled logger: read lags are whole steps of it (50 ms).
+POLL_GRID_HZ = 20.0
+#: A polled row's time stamp follows its grid instant by at most this (the row is written after the reads).
+POLL_STAMP_DELAY_S = 0.04
 
 
 @dataclass(frozen=True)
 class LoggerProfile:
-    name: str
-    rate_factor: float  # of the fleet's sample rate
+    name: str  # one of LOGGER_KINDS
+    rate_factor: float  # of the fleet's sample rate (when rate_hz is None)
     jitter_s: float  # timestamp jitter (1-sigma), clipped at 40 % of a period
     gap_prob: float  # chance per trip of one logging gap
     gap_s: tuple[float, float]
     drop_row_prob: float
     dup_row_prob: float
     missing_cell_prob: float
-    max_read_lag_s: float  # polled: a cell holds the value read this much before the row's time
-    stale_prob: float  # polled: a cell repeats the previous row's value
+    read_lag_s: tuple[float, float] | None = None  # polled: a cell's read precedes its row's stamp by this much
+    stale_prob: float = 0.0  # polled: a cell repeats the previous row's value
+    rate_hz: float | None = None  # an absolute row rate (polled, telematics)
+    wheel_step_kph: float = 0.01  # the wheel speeds' logged step
+    signals: frozenset[str] | None = None  # the signals recorded (None: all)
+
+    @property
+    def grid_hz(self) -> float | None:
+        """The simulation grid this logger needs (None: its own row rate)."""
+        return POLL_GRID_HZ if self.read_lag_s is not None else None
 
 
 LOGGERS: dict[str, LoggerProfile] = {
-    "bus": LoggerProfile("bus", 1.0, 0.002, 0.10, (2.0, 20.0), 0.0005, 0.0003, 0.0005, 0.0, 0.0),
-    "polled": LoggerProfile("polled", 0.5, 0.008, 0.20, (3.0, 40.0), 0.002, 0.001, 0.001, 0.3, 0.02),
+    "bus_capture": LoggerProfile("bus_capture", 1.0, 0.002, 0.10, (2.0, 20.0), 0.0005, 0.0003, 0.0005),
+    "polled": LoggerProfile("polled", 0.5, 0.008, 0.20, (3.0, 40.0), 0.002, 0.001, 0.001, (0.05, 0.30), 0.02,
+                            rate_hz=5.0, wheel_step_kph=0.1),
+    "telematics": LoggerProfile("telematics", 1.0, 0.02, 0.05, (5.0, 60.0), 0.003, 0.0, 0.0, rate_hz=1.0,
+                                wheel_step_kph=1.0,
+                                signals=frozenset({"vehicle_speed", "lamp_abs", "lamp_esc", "dtc"})),
 }
+#: The bus logger's earlier name, for callers that still use it.
+LOGGERS["bus"] = LOGGERS["bus_capture"]
 
 
 def logger_rate_hz(profile: LoggerProfile, fleet_rate_hz: float) -> float:
-    return max(fleet_rate_hz * profile.rate_factor, 1.0)
+    """The logger's row rate."""
+    return profile.rate_hz if profile.rate_hz is not None else max(fleet_rate_hz * profile.rate_factor, 1.0)
 
 
-def apply_logger_trips(signals: dict[str, np.ndarray], t_s: np.ndarray, trips: Segments, rate_hz: float,
-                       profile: LoggerProfile, rngs: list[np.random.Generator]
-                       ) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray]:
-    """(row times in integer milliseconds from each trip's start, logged columns, rows per trip) of the
-    ``trips`` whose samples follow one another in ``signals``, each logged with its own random stream.
+def grid_rate_hz(profile: LoggerProfile, fleet_rate_hz: float) -> float:
+    """The rate of the simulation grid the logger's rows are taken from."""
+    return profile.grid_hz or logger_rate_hz(profile, fleet_rate_hz)
 
-    Each numeric cell is read up to ``max_read_lag_s`` before its row (one lag
-    per signal and trip) and may repeat the previous row's reading (stale);
-    rows drop, one gap may open, rows duplicate, cells go missing. Every
-    column is gathered once, from the source sample its cell shows.
+
+def _row_step(profile: LoggerProfile, grid_hz: float, row_hz: float) -> int:
+    return max(int(round(grid_hz / row_hz)), 1)
+
+
+def apply_logger_trips(signals: dict[str, np.ndarray], t_s: np.ndarray, trips: Segments, grid_hz: float,
+                       profile: LoggerProfile, rngs: list[np.random.Generator], row_hz: float | None = None
+                       ) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[str, np.ndarray] | None]:
+    """(row times in integer milliseconds from each trip's start, logged columns, rows per trip, read lags)
+    of the ``trips`` whose samples (on a ``grid_hz`` grid) follow one another in ``signals``, each logged
+    with its own random stream.
+
+    A row every ``grid_hz / row_hz`` grid samples; rows drop, one gap may
+    open, rows duplicate, cells go missing. A polled logger's cells are read
+    ``read_lag_s`` before the row's stamp (one lag per signal and trip, ±1 grid
+    step per row) and may repeat the previous row's reading; its read lags
+    come back as integer milliseconds per logged signal (else None). Wheel
+    speeds are rounded to the logger's step.
     """
-    numeric = [name for name in signals if name in NUMERIC_SIGNALS]
-    period = 1.0 / rate_hz
+    names = [name for name in signals if profile.signals is None or name in profile.signals]
+    numeric = [name for name in names if name in NUMERIC_SIGNALS]
+    step = _row_step(profile, grid_hz, row_hz or grid_hz)
+    polled = profile.read_lag_s is not None
+    if polled:
+        lag_lo = max(int(np.ceil(profile.read_lag_s[0] * grid_hz - 1e-9)), 1)
+        lag_hi = max(int(np.floor((profile.read_lag_s[1] - POLL_STAMP_DELAY_S) * grid_hz + 1e-9)), lag_lo)
+    period = step / grid_hz
     lags, stale, rows, jitter, missing = [], [], [], [], []
     n_rows = np.zeros(len(trips.lengths), dtype=np.int64)
     for k, (rng, a, n) in enumerate(zip(rngs, trips.starts, trips.lengths)):
-        lags.append(np.rint(rng.uniform(0.0, profile.max_read_lag_s, len(numeric)) * rate_hz).astype(np.int64)
-                    if profile.max_read_lag_s > 0 else np.zeros(len(numeric), np.int64))
-        signal, row = np.divmod(bernoulli_successes(rng, len(numeric) * n, profile.stale_prob), n)
-        stale.append((signal, a + row))
-        keep = np.ones(n, dtype=bool)
-        keep[bernoulli_successes(rng, n, profile.drop_row_prob)] = False
-        if rng.random() < profile.gap_prob and n > 100:
-            t = t_s[a:a + n]
+        first_row = min(lag_hi + 1, n - 1) if polled else 0  # a polled logger writes after its first reads
+        candidates = np.arange(first_row, n, step)
+        m = len(candidates)
+        keep = np.ones(m, dtype=bool)
+        keep[bernoulli_successes(rng, m, profile.drop_row_prob)] = False
+        if rng.random() < profile.gap_prob and m > 100:
+            t = t_s[a + candidates]
             g0 = rng.uniform(0.1, 0.9) * t[-1]
             keep &= ~((t >= g0) & (t < g0 + rng.uniform(*profile.gap_s)))
         keep[[0, -1]] = True
-        kept = np.flatnonzero(keep)
+        kept = candidates[keep]
         copies = np.ones(len(kept), dtype=np.int64)
         copies[bernoulli_successes(rng, len(kept), profile.dup_row_prob)] = 2
         rows.append(a + np.repeat(kept, copies))
         n_rows[k] = len(rows[-1])
-        jitter.append(rng.standard_normal(n, dtype=np.float32))
+        jitter.append(np.repeat(rng.standard_normal(len(kept), dtype=np.float32), copies))  # a copy, stamp and all
+        if polled:
+            base = rng.integers(lag_lo, lag_hi + 1, len(names))
+            lag = np.clip(base[:, None] + rng.integers(-1, 2, (len(names), len(kept))), lag_lo, lag_hi)
+            lags.append(np.repeat(lag, copies, axis=1))
+        signal, row = np.divmod(bernoulli_successes(rng, len(numeric) * n_rows[k], profile.stale_prob), n_rows[k])
+        stale.append((signal, row))
         missing.append(np.divmod(bernoulli_successes(rng, len(numeric) * n_rows[k], profile.missing_cell_prob),
                                  n_rows[k]))
     rows = np.concatenate(rows)
-    out_start = np.cumsum(n_rows) - n_rows
-    jitter = np.clip(profile.jitter_s * np.concatenate(jitter), -0.4 * period, 0.4 * period)
-    jitter[trips.starts] = np.abs(jitter[trips.starts])
-    time_ms = np.round((t_s + jitter) * 1000.0).astype(np.int64)[rows]
-    stale_signal, stale_sample = (np.concatenate(x) for x in zip(*stale))
-    missing_signal, missing_row = (np.concatenate(x) for x in zip(*[(s, out_start[k] + r)
-                                                                     for k, (s, r) in enumerate(missing)]))
-    lags = np.array(lags).T  # (signals, trips)
-    logged = {}
-    for name, values in signals.items():
+    out = Segments.of(n_rows)
+    jitter = np.concatenate(jitter)
+    if polled:
+        jitter = np.minimum(np.abs(jitter) * profile.jitter_s, POLL_STAMP_DELAY_S)
+    else:
+        jitter = np.clip(profile.jitter_s * jitter, -0.4 * period, 0.4 * period)
+        jitter[out.starts] = np.abs(jitter[out.starts])
+    time_ms = np.round((t_s[rows] + jitter) * 1000.0).astype(np.int64)
+    stale_signal, stale_row = (np.concatenate([x + out.starts[k] * (j == 1) for k, x in enumerate(xs)])
+                               for j, xs in enumerate(zip(*stale)))
+    missing_signal, missing_row = (np.concatenate([x + out.starts[k] * (j == 1) for k, x in enumerate(xs)])
+                                   for j, xs in enumerate(zip(*missing)))
+    lags = np.concatenate(lags, axis=1) if polled else None  # (signals, rows)
+    logged, read_lag_ms = {}, {} if polled else None
+    for i, name in enumerate(names):
+        values = signals[name]
+        source = rows - lags[i] if polled else rows
+        if polled:
+            read_lag_ms[name] = time_ms - np.round(t_s[source] * 1000.0).astype(np.int64)
         if name not in NUMERIC_SIGNALS:
-            logged[name] = values[rows]
+            logged[name] = values[source]
             continue
-        i = numeric.index(name)
-        struck = stale_sample[stale_signal == i]
-        if lags[i].any() or len(struck):
-            first = trips.spread(trips.starts)
-            source = np.maximum(np.arange(trips.total) - trips.spread(lags[i]), first)
-            source[struck] = source[np.maximum(struck - 1, first[struck])]  # the previous row's reading, again
-            column = values[source[rows]]
-        else:
-            column = values[rows]
-        column[missing_row[missing_signal == i]] = np.nan
+        j = numeric.index(name)
+        struck = stale_row[stale_signal == j]
+        struck = struck[~np.isin(struck, out.starts)]
+        if len(struck):
+            source = source.copy()
+            source[struck] = source[struck - 1]  # the previous row's reading, again
+        column = values[source]
+        if name in WHEEL_SPEED_COLUMNS:
+            unit = profile.wheel_step_kph * KPH_MPS
+            column = np.round(column / unit) * unit
+        column[missing_row[missing_signal == j]] = np.nan
         logged[name] = column
-    return time_ms, logged, n_rows
+    return time_ms, logged, n_rows, read_lag_ms

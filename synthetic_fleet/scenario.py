@@ -18,15 +18,14 @@ class Depot:
     code: str
     name: str
     export_style: str  # which export tool the depot's workshop uses
-    polled_share: float  # share of its vehicles fitted with a polled logger
     rough_trip_share: float  # share of trips on gravel / rough roads
     yard_grade: float  # the depot yard's slope (rise over run) where vehicles park overnight
 
 
 DEPOTS: tuple[Depot, ...] = (
-    Depot("HX", "Holloway Cross", "A", 0.25, 0.03, 0.045),
-    Depot("BM", "Brenmoor", "B", 0.25, 0.05, 0.0),
-    Depot("SR", "Sallow Reach", "A", 0.35, 0.30, 0.02),
+    Depot("HX", "Holloway Cross", "A", 0.03, 0.045),
+    Depot("BM", "Brenmoor", "B", 0.05, 0.0),
+    Depot("SR", "Sallow Reach", "A", 0.30, 0.02),
 )
 
 #: Invented manufacturer code and per-platform descriptor sections (no I, O, Q).

@@ -14,12 +14,12 @@ import pandas as pd
 
 from synthetic_fleet.drive import drive_traces
 from synthetic_fleet.faults import LAMP_SEVERITY, check_confounders, parse_fault
-from synthetic_fleet.logger import LOGGERS, LoggerProfile, apply_logger_trips, logger_rate_hz
+from synthetic_fleet.logger import LOGGER_KINDS, LOGGERS, LoggerProfile, apply_logger_trips, grid_rate_hz, logger_rate_hz
 from synthetic_fleet.platforms import Platform, platform
 from synthetic_fleet.scenario import DEPOTS, synthetic_vin
 from synthetic_fleet.sensors import SensorHealth, TripCondition, measure_trips
 from tracktrue.ids import trip_id
-from tracktrue.schema import POSITIONS, SAMPLE_COLUMNS
+from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, SAMPLE_COLUMNS
 
 #: Radius change of a compact spare (smaller than the road tyre) and of new tyres (deeper tread).
 SPARE_RADIUS_FRAC = (-0.04, -0.025)
@@ -40,16 +40,25 @@ class SimulatedTrip:
     time_ms: np.ndarray  # from ``start``
     columns: dict[str, np.ndarray]
     rate_hz: float
+    #: A polled logger's read lag of each cell behind its row's stamp, integer ms per signal (else None).
+    read_lag_ms: dict[str, np.ndarray] | None = None
 
     @property
     def n_samples(self) -> int:
         return len(self.time_ms)
 
     def to_frame(self) -> pd.DataFrame:
-        """The canonical samples table (tracktrue.schema.SAMPLE_COLUMNS)."""
+        """The canonical samples table (tracktrue.schema.SAMPLE_COLUMNS); signals the logger does not
+        record are NaN (numbers) or empty."""
         time = pd.to_datetime(self.start.value + self.time_ms * 1_000_000, unit="ns", utc=True)
         frame = pd.DataFrame({"vehicle_id": self.vehicle_id, "trip_id": self.trip_id, "time": time,
                               **{k: v for k, v in self.columns.items() if k != "dtc"}})
+        for name in NUMERIC_SIGNALS:
+            if name not in frame:
+                frame[name] = np.nan
+        for name in ("brake", "lamp_abs", "lamp_esc"):
+            if name not in frame:
+                frame[name] = pd.array([pd.NA] * len(frame), dtype="boolean")
         frame["dtc"] = pd.array(self.columns["dtc"], dtype="string")
         for name in ("vehicle_id", "trip_id"):
             frame[name] = frame[name].astype("string")
@@ -66,6 +75,7 @@ class SimulatedTrips:
     time_ms: np.ndarray  # from each trip's start
     columns: dict[str, np.ndarray]
     rate_hz: float
+    read_lag_ms: dict[str, np.ndarray] | None = None
 
     @property
     def n_samples(self) -> int:
@@ -77,8 +87,9 @@ class SimulatedTrips:
         start = pd.Timestamp(self.starts[k])
         start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
         first = start + pd.Timedelta(milliseconds=int(self.time_ms[rows.start]))
+        lags = None if self.read_lag_ms is None else {name: v[rows] for name, v in self.read_lag_ms.items()}
         return SimulatedTrip(self.vehicle_id, trip_id(self.vehicle_id, first), start, self.time_ms[rows],
-                             {name: v[rows] for name, v in self.columns.items()}, self.rate_hz)
+                             {name: v[rows] for name, v in self.columns.items()}, self.rate_hz, lags)
 
 
 def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCondition], *, vehicle_id: str,
@@ -87,7 +98,7 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
                    rngs: Sequence[np.random.Generator]) -> SimulatedTrips:
     """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log several trips of one
     vehicle in one pass; each trip draws on its own random stream ``rngs[k]`` only."""
-    rate = logger_rate_hz(logger, fleet_rate_hz)
+    rate = grid_rate_hz(logger, fleet_rate_hz)
     streams = [rng.spawn(3) for rng in rngs]  # drive, sensors, logger: a fault changes nothing but its own signals
     drive_rngs, sensor_rngs, logger_rngs = ([s[i] for s in streams] for i in range(3))
     trace = drive_traces(list(drives), list(durations_s), rate, drive_rngs, [c.park_grade_start for c in conds],
@@ -104,8 +115,9 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
         if fault is not None and (abs_lit or esc_lit):
             dtc[a:b][lamp[a:b]] = fault.trouble_code
     signals["dtc"] = dtc
-    time_ms, logged, lengths = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs)
-    return SimulatedTrips(vehicle_id, list(starts), lengths, time_ms, logged, rate)
+    row_rate = logger_rate_hz(logger, fleet_rate_hz)
+    time_ms, logged, lengths, lags = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs, row_rate)
+    return SimulatedTrips(vehicle_id, list(starts), lengths, time_ms, logged, row_rate, lags)
 
 
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
@@ -141,13 +153,18 @@ def confounded_condition(base: TripCondition, confounders: Sequence[str], rng: n
 
 def trip_samples(platform_name: str = "compact_van", *, fault: str | None = None, fault_severity: float = 1.0,
                  confounders: Sequence[str] = (), drive: str = "mixed", duration_s: float = 1200.0,
-                 rate_hz: float = 10.0, seed: int = 0) -> tuple[pd.DataFrame, dict]:
+                 rate_hz: float = 10.0, seed: int = 0, logger_kind: str = "bus_capture",
+                 wheel_step_kph: float | None = None) -> tuple[pd.DataFrame, dict]:
     """One trip of canonical SI samples and the vehicle's registry row.
 
     ``fault_severity`` 1.0 is a well-developed fault still below the lamp
     threshold (faults.LAMP_SEVERITY lights it); 0 is none. The vehicle's healthy
     imperfections depend on ``seed`` only, so the same seed with and without a
-    fault compares one vehicle against itself.
+    fault compares one vehicle against itself. ``logger_kind`` (logger.LOGGER_KINDS)
+    logs the trip at ``rate_hz`` rows per second (a polled logger at most half its
+    20 Hz read grid); ``wheel_step_kph`` overrides the kind's wheel-speed step.
+    Signals the kind does not record are NaN (telematics: everything but vehicle
+    speed, lamps and trouble code).
     """
     spec = platform(platform_name)
     if fault is not None:
@@ -156,6 +173,13 @@ def trip_samples(platform_name: str = "compact_van", *, fault: str | None = None
         raise ValueError(f"fault_severity must be >= 0, got {fault_severity}")
     if not rate_hz > 0 or not duration_s > 0:
         raise ValueError("rate_hz and duration_s must be positive")
+    if logger_kind not in LOGGER_KINDS:
+        raise ValueError(f"unknown logger kind {logger_kind!r}; known: {', '.join(LOGGER_KINDS)}")
+    logger = LOGGERS[logger_kind]
+    if logger.grid_hz is not None and rate_hz > logger.grid_hz / 2:
+        raise ValueError(f"a {logger_kind} logger reads at most {logger.grid_hz / 2:g} rows/s, got {rate_hz}")
+    logger = replace(logger, rate_hz=None if logger_kind == "bus_capture" else rate_hz,
+                     wheel_step_kph=wheel_step_kph or logger.wheel_step_kph)
     vehicle_rng, condition_rng, trip_rng = (np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(3))
     health = SensorHealth.draw(vehicle_rng)
     lit = fault is not None and parse_fault(fault).is_sensor_fault and fault_severity >= LAMP_SEVERITY
@@ -163,8 +187,7 @@ def trip_samples(platform_name: str = "compact_van", *, fault: str | None = None
     cond = confounded_condition(cond, confounders, condition_rng)
     vid = f"SIM-{platform_name}-{seed}"
     trip = simulate_trip(spec, health, cond, vehicle_id=vid, start=pd.Timestamp("2026-03-02T08:00:00Z"),
-                         drive=drive, duration_s=duration_s, fleet_rate_hz=rate_hz, logger=LOGGERS["bus"],
-                         rng=trip_rng)
+                         drive=drive, duration_s=duration_s, fleet_rate_hz=rate_hz, logger=logger, rng=trip_rng)
     registry = {"vehicle_id": vid, **spec.registry_row(), "depot": "simulated",
                 "vin": synthetic_vin(platform_name, DEPOTS[0], seed, 5)}
     return trip.to_frame(), registry
