@@ -12,6 +12,14 @@ Tuning seeds (design choices were made while looking at them, so they are
 excluded from the figures): 101, 202, 303 (24 vehicles, 28 days). Held-out
 evaluation seeds, fixed before any evaluation on them: 404, 505, 606, 707.
 
+Simulator configurations (``--configs``): ``default`` and ``held_out``
+(synthetic_fleet.HELD_OUT: other logger rates, resolutions, growth curves and
+confounder strengths, chosen once and never used while tuning). Each is run on
+the same seeds; figures are pooled per configuration, and per logger kind
+(loggers.csv beside truth.csv) within each. While iterating, run fewer seeds,
+smaller fleets or one configuration, e.g. ``--seeds 101 --vehicles 16 --days 21
+--configs default``; report the full default run.
+
 Service events: the simulator writes service_history.csv, but no stage
 publishes a ``service_events`` table yet (ingest owns the raw inputs). With
 ``--service`` this script publishes it into the store as a stand-in, and the
@@ -37,17 +45,29 @@ TARGETS = {  # issue 5: target, direction
 }
 
 
-def build_chain(work: Path, seed: int, n_vehicles: int, days: int) -> tuple[Path, dict]:
+def simulator_config(name: str):
+    """None for the default configuration, else synthetic_fleet.HELD_OUT (None when the
+    simulator has no held-out configuration: that run is skipped with a message)."""
+    if name == "default":
+        return None
+    import synthetic_fleet
+
+    return getattr(synthetic_fleet, "HELD_OUT", None)
+
+
+def build_chain(work: Path, seed: int, n_vehicles: int, days: int, config_name: str = "default") -> tuple[Path, dict]:
     from features import run_features
     from ingest import run_ingest
     from synthetic_fleet import generate_fleet
     from tracktrue.store import Store
 
-    out = work / f"fleet_s{seed}_{n_vehicles}x{days}"
+    suffix = "" if config_name == "default" else f"_{config_name}"
+    out = work / f"fleet_s{seed}_{n_vehicles}x{days}{suffix}"
     times = {}
     t = time.perf_counter()
     if not (out / "truth.csv").exists():
-        generate_fleet(out, n_vehicles=n_vehicles, days=days, seed=seed)
+        extra = {} if config_name == "default" else {"config": simulator_config(config_name)}
+        generate_fleet(out, n_vehicles=n_vehicles, days=days, seed=seed, **extra)
     times["generate_s"] = time.perf_counter() - t
     store = Store.open(out / "store")
     t = time.perf_counter()
@@ -59,7 +79,7 @@ def build_chain(work: Path, seed: int, n_vehicles: int, days: int) -> tuple[Path
     return out, times
 
 
-def evaluate_seed(out: Path, with_service: bool) -> tuple[dict, dict, dict]:
+def evaluate_seed(out: Path, with_service: bool):
     import models
     from tracktrue.store import Store
 
@@ -75,15 +95,38 @@ def evaluate_seed(out: Path, with_service: bool) -> tuple[dict, dict, dict]:
     t_eval = time.perf_counter() - t
     print(summary.describe())
     print(report.describe())
-    return report.metrics, (report.early.metrics if report.early else {}), {"score_s": t_score, "evaluate_s": t_eval}
+    return report, {"score_s": t_score, "evaluate_s": t_eval}
 
 
 def _pooled(per_seed: list[dict]) -> pd.DataFrame:
+    """Mean of each figure over the seeds that have it (a seed without a fault of a kind
+    gives n/a there); days per false alarm pooled as total days over total alarms."""
     frames = [pd.DataFrame(m) for m in per_seed if m]
     if not frames:
         return pd.DataFrame()
     stacked = pd.concat(frames, keys=range(len(frames)))
-    return stacked.groupby(level=1).mean(numeric_only=True).reindex(frames[0].index)
+    pooled = stacked.replace([np.inf], np.nan).groupby(level=1).mean(numeric_only=True).reindex(frames[0].index)
+    days = "healthy_vehicle_days_per_false_alarm"
+    if days in pooled.index and "false_alarms_pct_per_30d" in pooled.index:
+        rate = pooled.loc["false_alarms_pct_per_30d"]  # % of vehicles per 30 days → days per alarm
+        pooled.loc[days] = np.where(rate > 0, 30.0 * 100.0 / rate.where(rate > 0), np.inf)
+    return pooled
+
+
+def _print_pooled(title: str, runs: list[dict], targets: bool) -> None:
+    pooled = _pooled(runs)
+    if pooled.empty:
+        return
+    print(f"\n== {title} ==")
+    print(pooled.map(lambda x: "n/a" if not np.isfinite(x) else f"{x:.3f}").to_string())
+    if not targets:
+        return
+    for metric, (target, sense) in TARGETS.items():
+        value = pooled.at[metric, "tracktrue"] if metric in pooled.index else math.nan
+        ok = value >= target if sense == "≥" else value <= target
+        others = pooled.loc[metric].drop("tracktrue")
+        print(f"  {metric}: {value:.3f} (target {sense} {target}) {'met' if ok else 'NOT met'}; "
+              f"baselines {', '.join(f'{k} {v:.3f}' for k, v in others.items() if np.isfinite(v))}")
 
 
 def main() -> int:
@@ -92,38 +135,38 @@ def main() -> int:
     parser.add_argument("--seeds", type=int, nargs="+", default=list(HELD_OUT_SEEDS))
     parser.add_argument("--vehicles", type=int, default=24)
     parser.add_argument("--days", type=int, default=28)
+    parser.add_argument("--configs", nargs="+", choices=("default", "held_out"), default=["default", "held_out"],
+                        help="simulator configurations to run (default: both)")
     parser.add_argument("--service", action="store_true", help="also evaluate with service_history.csv published")
     args = parser.parse_args()
     logging.basicConfig(level=logging.WARNING)
     if set(args.seeds) & set(TUNING_SEEDS):
         print(f"warning: seed(s) {sorted(set(args.seeds) & set(TUNING_SEEDS))} were used for tuning")
     variants = [False, True] if args.service else [False]
-    final: dict[bool, list] = {v: [] for v in variants}
-    early: dict[bool, list] = {v: [] for v in variants}
-    for seed in args.seeds:
-        print(f"\n===== seed {seed}: {args.vehicles} vehicles × {args.days} days =====", flush=True)
-        out, times = build_chain(args.work, seed, args.vehicles, args.days)
-        for with_service in variants:
-            print(f"--- {'with' if with_service else 'without'} published service events", flush=True)
-            m, e, t2 = evaluate_seed(out, with_service)
-            final[with_service].append(m)
-            early[with_service].append(e)
-            times.update(t2)
-        print("wall times: " + ", ".join(f"{k} {v:.1f}" for k, v in times.items()), flush=True)
-    for with_service in variants:
-        label = "with service events" if with_service else "without service events"
-        for name, runs in (("end of data", final[with_service]), ("one week after median onset", early[with_service])):
-            pooled = _pooled(runs)
-            if pooled.empty:
-                continue
-            print(f"\n== mean over seeds {args.seeds}, {label}, {name} ==")
-            print(pooled.map(lambda x: "n/a" if not np.isfinite(x) else f"{x:.3f}").to_string())
-            for metric, (target, sense) in TARGETS.items():
-                value = pooled.at[metric, "tracktrue"] if metric in pooled.index else math.nan
-                ok = value >= target if sense == "≥" else value <= target
-                others = pooled.loc[metric].drop("tracktrue")
-                print(f"  {metric}: {value:.3f} (target {sense} {target}) {'met' if ok else 'NOT met'}; "
-                      f"baselines {', '.join(f'{k} {v:.3f}' for k, v in others.items() if np.isfinite(v))}")
+    configs = [c for c in args.configs if c == "default" or simulator_config(c) is not None]
+    for c in sorted(set(args.configs) - set(configs)):
+        print(f"note: the simulator has no {c} configuration (synthetic_fleet.HELD_OUT): that run is skipped")
+    reports: dict[tuple[str, bool], list] = {(c, v): [] for c in configs for v in variants}
+    for config in configs:
+        for seed in args.seeds:
+            print(f"\n===== seed {seed}, {config} configuration: {args.vehicles} vehicles × {args.days} days =====",
+                  flush=True)
+            out, times = build_chain(args.work, seed, args.vehicles, args.days, config)
+            for with_service in variants:
+                print(f"--- {'with' if with_service else 'without'} published service events", flush=True)
+                report, t2 = evaluate_seed(out, with_service)
+                reports[(config, with_service)].append(report)
+                times.update(t2)
+            print("wall times: " + ", ".join(f"{k} {v:.1f}" for k, v in times.items()), flush=True)
+    for (config, with_service), runs in reports.items():
+        label = f"{config} configuration, {'with' if with_service else 'without'} service events"
+        for name, pick in (("end of data", lambda r: r), ("one week after median onset", lambda r: r.early)):
+            chosen = [pick(r) for r in runs if pick(r) is not None]
+            _print_pooled(f"mean over seeds {args.seeds}, {label}, {name}", [r.metrics for r in chosen], True)
+            kinds = sorted({k for r in chosen for k in r.by_logger})
+            for kind in kinds:
+                _print_pooled(f"logger kind {kind} — {label}, {name}",
+                              [r.by_logger[kind] for r in chosen if kind in r.by_logger], False)
     return 0
 
 

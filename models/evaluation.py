@@ -12,13 +12,28 @@ Methods compared in one run, on the same trips:
   (one forest, no peer groups, no drift detector); alerts at a vehicle
   score ``watch_score_z`` fleet spreads above the median.
 
-Definitions (truth.csv: vehicle_id, fault, component, onset_date, lamp_date):
-positives at the as-of date are sensor faults (component not a tyre) with
-onset ≤ as-of and no lamp yet; k = their number; the ranking excludes
-vehicles whose lamp is lit. Lead time = lamp date − the first day of the alert
-run still going on the last trip before the lamp (0 when none). Lead fraction
-= lead / (lamp − onset), capped at 1. False alarms = alert runs started on
-vehicles without any truth row, per 30 healthy vehicle-days, in % of vehicles.
+Definitions (truth.csv: vehicle_id, fault, component, onset_date, lamp_date,
+optionally growth = gradual | sudden | intermittent): positives at the as-of
+date are sensor faults (component not a tyre) with onset ≤ as-of and no lamp
+yet; k = their number; the ranking excludes vehicles whose lamp is lit. Lead
+time = lamp date − the first day of the alert run still going on the last trip
+before the lamp (0 when none). Lead fraction = lead / (lamp − onset), capped
+at 1. False alarms = alert runs started on vehicles without any truth row, per
+30 healthy vehicle-days, in % of vehicles.
+
+Two kinds of fault are reported apart, for every method alike, because no
+detector of developing disagreement can warn of them early: faults whose truth
+growth is sudden or intermittent ("not detectable early": no k, no recall, no
+lead for them; ``not_early_found`` says how many were flagged or lamp-lit at
+the as-of date), and faults on vehicles whose logs carry no signal any feature
+can use (a telematics unit: vehicle speed and lamps only; such vehicles are
+also left out of the false-alarm denominator). Which vehicles those are comes
+from the data (no trip with a computable feature) or from ``loggers.csv``
+beside the truth file (logger_kind telematics).
+
+Per logger kind: with ``loggers.csv`` beside the truth file (vehicle_id,
+logger_kind), or a ``logger_kind`` column in trip_features (the most frequent
+kind of each vehicle's trips), every figure is also computed within each kind.
 """
 
 from __future__ import annotations
@@ -38,6 +53,10 @@ from tracktrue.store import Store
 
 TRUTH_COLUMNS = ("vehicle_id", "fault", "component", "onset_date", "lamp_date")
 ROLLING_TRIPS = 10
+#: Truth growth curves no early-warning detector can anticipate (see module doc).
+NOT_EARLY_GROWTH = frozenset({"sudden", "intermittent"})
+#: Logger kinds that record no chassis sensor (vehicle speed and lamps only).
+NO_SENSOR_LOGGERS = frozenset({"telematics"})
 
 
 @dataclass
@@ -56,14 +75,17 @@ class EvaluationReport:
     backtest: pd.DataFrame | None = None
     inspections: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
+    by_logger: dict[str, dict[str, dict[str, float]]] = field(default_factory=dict)
+    label: str = ""
 
     def describe(self) -> str:
         lines = []
         if self.metrics:
-            names = list(next(iter(self.metrics.values())).keys())
-            table = pd.DataFrame(self.metrics).reindex(names)
-            lines.append(f"evaluation as of {self.as_of} (ground truth)")
-            lines.append(table.map(_cell).to_string())
+            lines.append(f"evaluation as of {self.as_of} (ground truth{', ' + self.label if self.label else ''})")
+            lines.append(metrics_table(self.metrics).map(_cell).to_string())
+        for kind, metrics in self.by_logger.items():
+            lines.append(f"logger kind {kind}, as of {self.as_of}")
+            lines.append(metrics_table(metrics).map(_cell).to_string())
         if self.backtest is not None:
             lines.append(f"backtest as of {self.as_of}: lamp events in the logs (no truth file)")
             if self.backtest.empty:
@@ -79,6 +101,12 @@ class EvaluationReport:
         if self.early is not None:
             lines += ["", self.early.describe()]
         return "\n".join(lines)
+
+
+def metrics_table(metrics: dict[str, dict[str, float]]) -> pd.DataFrame:
+    """Figures as rows, methods as columns (the order of the first method's figures)."""
+    names = list(next(iter(metrics.values())).keys())
+    return pd.DataFrame(metrics).reindex(names)
 
 
 def _cell(x) -> str:
@@ -108,7 +136,27 @@ def read_truth(path: Path) -> pd.DataFrame:
             row = int(np.flatnonzero(parsed.isna().to_numpy())[0]) + 2
             raise UserError(f"{path}, line {row}: onset_date is empty")
         df[col] = parsed.dt.date
+    if "growth" not in df.columns:
+        df["growth"] = "gradual"
     return df
+
+
+def read_loggers(truth_csv: Path) -> pd.Series | None:
+    """logger_kind per vehicle from ``loggers.csv`` beside the truth file, when there is one."""
+    path = Path(truth_csv).with_name("loggers.csv")
+    if not path.is_file():
+        return None
+    try:
+        df = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+        raise UserError(f"{path}: not a readable CSV ({exc})") from None
+    missing = [c for c in ("vehicle_id", "logger_kind") if c not in df.columns]
+    if missing:
+        raise UserError(f"{path}: missing column(s) {', '.join(missing)} (need vehicle_id, logger_kind)")
+    empty = df["logger_kind"].str.strip() == ""
+    if empty.any():
+        raise UserError(f"{path}, line {int(np.flatnonzero(empty.to_numpy())[0]) + 2}: logger_kind is empty")
+    return df.drop_duplicates("vehicle_id", keep="last").set_index("vehicle_id")["logger_kind"].str.strip()
 
 
 # --------------------------------------------------------------- methods
@@ -187,12 +235,19 @@ def _run_start_before(trips: pd.DataFrame, vehicle: str, before: pd.Timestamp) -
 
 
 def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit: set[str],
-             lead_zero: bool = False, random_order: bool = False) -> dict[str, float]:
-    t = truth[truth["onset_date"] <= as_of]
+             unmeasured: set[str] = frozenset(), lead_zero: bool = False,
+             random_order: bool = False) -> dict[str, float]:
+    """The figures of one method (module doc); ``unmeasured``: vehicles whose logs carry no
+    feature signal, left out of every figure but counted."""
+    result = _restrict(result, unmeasured, keep=False)
+    t_all = truth[truth["onset_date"] <= as_of]
+    t = t_all[~t_all["vehicle_id"].isin(unmeasured)]
     is_tyre = t["component"].str.startswith("tyre_")
     lit = t["lamp_date"].map(lambda d: d is not None and not pd.isna(d) and d <= as_of)
-    positives = set(t.loc[~is_tyre & ~lit, "vehicle_id"])
-    excluded = lamp_lit | set(t.loc[lit, "vehicle_id"])
+    not_early = t["growth"].isin(NOT_EARLY_GROWTH) & ~is_tyre
+    positives = set(t.loc[~is_tyre & ~lit & ~not_early, "vehicle_id"])
+    # a sudden fault before its lamp is neither a positive nor healthy: out of the ranking
+    excluded = lamp_lit | set(t.loc[lit, "vehicle_id"]) | set(t.loc[not_early, "vehicle_id"])
     veh = result.vehicles[~result.vehicles["vehicle_id"].isin(excluded)].sort_values("order")
     k = len(positives)
     if random_order:
@@ -200,15 +255,18 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     else:
         precision = len(set(veh["vehicle_id"].head(k)) & positives) / k if k else np.nan
     flagged = set(veh.loc[veh["flagged"], "vehicle_id"])
+    flagged_any = set(result.vehicles.loc[result.vehicles["flagged"].astype(bool), "vehicle_id"])
     recall = len(flagged & positives) / k if k else np.nan
     comp = result.vehicles.set_index("vehicle_id")["component"]
-    sensor = t[~is_tyre & t["vehicle_id"].isin(flagged | set(t.loc[lit, "vehicle_id"]))]
+    sensor = t[~is_tyre & t["vehicle_id"].isin(flagged_any | set(t.loc[lit, "vehicle_id"]))]
     attributed = sensor[sensor["vehicle_id"].map(comp).fillna("none") != "none"]
     attribution = (attributed["vehicle_id"].map(comp) == attributed["component"]).mean() if len(attributed) else np.nan
     tyres = t[is_tyre]
     tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
+    sudden = set(t.loc[not_early, "vehicle_id"])
+    found = (flagged_any | lamp_lit | set(t.loc[lit, "vehicle_id"])) & sudden
     leads, fracs = [], []
-    for r in t[lit & ~is_tyre].itertuples():
+    for r in t[lit & ~is_tyre & ~not_early].itertuples():
         start = None if lead_zero else _run_start_before(result.trips, r.vehicle_id, pd.Timestamp(r.lamp_date, tz="UTC"))
         lead = max(0, (r.lamp_date - start).days) if start else 0
         span = max(1, (r.lamp_date - r.onset_date).days)
@@ -230,6 +288,9 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
         "healthy_vehicle_days_per_false_alarm": vdays / starts if starts else np.inf,
         "attribution_accuracy": float(attribution),
         "tyres_classed_tyre": float(tyre_ok),
+        "not_detectable_early (sudden/intermittent faults)": float(len(sudden)),
+        "not_early_found": len(found) / len(sudden) if sudden else np.nan,
+        "faults_without_sensor_signals": float(t_all["vehicle_id"].isin(unmeasured).sum()),
     }
 
 
@@ -247,21 +308,60 @@ def evaluate(store: Store, truth_csv: Path | None, as_of: dt.date | None, early:
         return EvaluationReport(fleet.as_of, {}, backtest=_backtest(fleet), inspections=inspections,
                                 notes=["without a truth file the first lamp event of each vehicle is the event"])
     truth = read_truth(Path(truth_csv))
-    report = _evaluate_fleet(fleet, truth)
+    loggers = read_loggers(Path(truth_csv))
+    report = _evaluate_fleet(fleet, truth, loggers)
     report.inspections = inspections
     onsets = pd.to_datetime(pd.Series(truth["onset_date"]))
     early_date = (onsets.median() + pd.Timedelta(days=7)).date() if len(onsets) else None
     if early and early_date is not None and early_date < fleet.as_of:
         try:
-            report.early = _evaluate_fleet(score_fleet(store, early_date), truth)
+            report.early = _evaluate_fleet(score_fleet(store, early_date), truth, loggers)
         except UserError as exc:
             report.notes.append(f"early evaluation at {early_date} skipped: {exc}")
     return report
 
 
-def _evaluate_fleet(fleet: ScoredFleet, truth: pd.DataFrame) -> EvaluationReport:
-    lamp_lit = set(fleet.status.loc[fleet.status["status"].eq("lamp_lit"), "vehicle_id"])
-    results = {
+def vehicle_loggers(fleet: ScoredFleet, loggers: pd.Series | None) -> pd.Series:
+    """Logger kind per vehicle: loggers.csv (ground truth) first, else the most frequent
+    ``logger_kind`` of the vehicle's trips in trip_features, else ``unknown``."""
+    vids = pd.Index(fleet.status["vehicle_id"].unique())
+    kind = pd.Series("unknown", index=vids, dtype=object)
+    tf = fleet.trip_features
+    if "logger_kind" in tf.columns:
+        seen = tf.dropna(subset=["logger_kind"]).groupby("vehicle_id")["logger_kind"].agg(lambda s: s.mode().iloc[0])
+        kind.update(seen.astype(str))
+    if loggers is not None:
+        kind.update(loggers[loggers.index.isin(vids)])
+    return kind
+
+
+def unmeasured_vehicles(fleet: ScoredFleet, kinds: pd.Series) -> set[str]:
+    """Vehicles no feature can speak for: no trip with a computable feature, or a logger
+    kind that records no chassis sensor (a data property, the same for every method)."""
+    tf = fleet.trip_features
+    measured = tf[fleet.scorer.features_].notna().any(axis=1).groupby(tf["vehicle_id"]).any()
+    return set(measured.index[~measured]) | set(kinds.index[kinds.isin(NO_SENSOR_LOGGERS)])
+
+
+def _evaluate_fleet(fleet: ScoredFleet, truth: pd.DataFrame, loggers: pd.Series | None = None) -> EvaluationReport:
+    kinds = vehicle_loggers(fleet, loggers)
+    unmeasured = unmeasured_vehicles(fleet, kinds)
+    results = _method_results(fleet)
+    report = EvaluationReport(fleet.as_of, _method_metrics(fleet, results, truth, unmeasured))
+    if kinds.nunique() > 1 or loggers is not None:
+        for kind in sorted(kinds.unique()):
+            vids = set(kinds.index[kinds == kind])
+            report.by_logger[kind] = _method_metrics(fleet, results, truth, unmeasured, vids)
+    if unmeasured:
+        report.notes.append(f"{len(unmeasured)} vehicle(s) whose logs carry no feature signal (e.g. telematics: "
+                            "vehicle speed and lamps only) are left out of every figure and shown as "
+                            "insufficient_data; only their lamps speak for them")
+    return report
+
+
+def _method_results(fleet: ScoredFleet) -> dict[str, tuple[MethodResult, dict]]:
+    """tracktrue and the three baselines on the same trips, with their metric options."""
+    return {
         "tracktrue": (_tracktrue_result(fleet), {}),
         "lamp_only": (MethodResult(
             pd.DataFrame({"vehicle_id": fleet.status["vehicle_id"], "order": 1, "flagged": False, "component": "none"}),
@@ -270,10 +370,26 @@ def _evaluate_fleet(fleet: ScoredFleet, truth: pd.DataFrame) -> EvaluationReport
         "single_feature": (_single_feature_result(fleet), {}),
         "raw_forest": (_raw_forest_result(fleet), {}),
     }
-    metrics = {name: _metrics(res, truth, fleet.as_of, lamp_lit, **kw) for name, (res, kw) in results.items()}
+
+
+def _method_metrics(fleet: ScoredFleet, results: dict[str, tuple[MethodResult, dict]], truth: pd.DataFrame,
+                    unmeasured: set[str], within: set[str] | None = None) -> dict[str, dict[str, float]]:
+    """Every method's figures, on the whole fleet or ``within`` a set of vehicles."""
+    lamp_lit = set(fleet.status.loc[fleet.status["status"].eq("lamp_lit"), "vehicle_id"])
+    if within is not None:
+        truth = truth[truth["vehicle_id"].isin(within)]
+        results = {name: (_restrict(res, within), kw) for name, (res, kw) in results.items()}
+    metrics = {name: _metrics(res, truth, fleet.as_of, lamp_lit, unmeasured, **kw) for name, (res, kw) in results.items()}
     metrics["lamp_only"]["attribution_accuracy"] = np.nan
     metrics["lamp_only"]["tyres_classed_tyre"] = np.nan
-    return EvaluationReport(fleet.as_of, metrics)
+    return metrics
+
+
+def _restrict(result: MethodResult, vehicles: set[str], keep: bool = True) -> MethodResult:
+    """The result on ``vehicles`` only (``keep``) or on all others."""
+    v = result.vehicles["vehicle_id"].isin(vehicles) == keep
+    t = result.trips["vehicle_id"].isin(vehicles) == keep
+    return MethodResult(result.vehicles[v], result.trips[t])
 
 
 def _backtest(fleet: ScoredFleet) -> pd.DataFrame:

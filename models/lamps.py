@@ -4,9 +4,12 @@ DESIGN.md, "What the lamp means": an ESC lamp flashes during a stability
 intervention and stays lit while the driver has switched ESC off (until the
 next key cycle); an intermittent fault can store a trouble code while the lamp
 goes out. A lamp *event* is therefore a lamp (ABS or ESC) that is lit in two
-consecutive trips of a vehicle (it survived a key cycle), or a lit lamp that
-comes with a trouble code. A single trip with the ESC lamp and no code is an
-intervention or ESC-off: recorded (``lamp_on``), never an event.
+consecutive trips of a vehicle (it survived a key cycle), or a trouble code
+in the trip — with the lamp lit, or stored while the lamp went out again (an
+intermittent fault: the on-board monitor has already seen it). A single trip
+with the ESC lamp and no code is a stability intervention (the lamp flashes)
+or the driver's ESC-off (lit until the next key cycle): recorded
+(``lamp_on``), never an event.
 
 The per-trip summary comes from trip_features when features/ provides it
 (``lamp_abs_on``, ``lamp_esc_on``, ``dtc``); otherwise
@@ -75,7 +78,7 @@ def lamp_events(trips: pd.DataFrame, lamps: pd.DataFrame) -> pd.DataFrame:
 
     ``lamp_event`` on a trip uses only that trip and the vehicle's previous
     one, so it never looks ahead of an as-of date: a lamp lit now counts once
-    it is still lit at the next key cycle, or at once with a trouble code.
+    it is still lit at the next key cycle; a trouble code counts at once.
     """
     df = trips[["vehicle_id", "trip_id", "start_time"]].merge(lamps, on="trip_id", how="left")
     df = df.sort_values(["vehicle_id", "start_time"]).reset_index(drop=True)
@@ -83,5 +86,5 @@ def lamp_events(trips: pd.DataFrame, lamps: pd.DataFrame) -> pd.DataFrame:
     coded = df["dtc"].fillna("").astype(str).str.strip() != ""
     prev_on = on.groupby(df["vehicle_id"]).shift(1, fill_value=False).astype(bool)
     df["lamp_on"] = on
-    df["lamp_event"] = on & (coded | prev_on)
+    df["lamp_event"] = coded | (on & prev_on)
     return df[["vehicle_id", "trip_id", "start_time", "lamp_on", "lamp_event", "dtc"]]

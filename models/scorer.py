@@ -424,10 +424,13 @@ class FleetScorer:
             warnings.simplefilter("ignore", RuntimeWarning)
             zmed = recent.groupby("vehicle_id")[zc].median()
         vscore = recent.groupby("vehicle_id")["score"].median()
+        # trips that measured something: a telematics unit's (vehicle speed and lamps only)
+        # measure nothing, and its vehicle is insufficient_data, never ok
         n_recent = recent.groupby("vehicle_id").size()
+        n_measured = recent[zc].notna().any(axis=1).groupby(recent["vehicle_id"]).sum()
         last = cur.groupby("vehicle_id").tail(1).set_index("vehicle_id")
         since_any, since_sensor = _run_start(cur, "alert"), _run_start(cur, "sensor_alert")
-        lamp_last = lamps.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
+        lamp_last = _lamp_state(lamps, ts)
         strength = per_trip.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
         rows = []
         for vid in vscore.index:
@@ -448,8 +451,8 @@ class FleetScorer:
             score_z = (vscore[vid] - self.score_center_) / self.score_scale_
             if lamp_event:
                 status = "lamp_lit"
-            elif n_recent[vid] < self.min_trips:
-                status = "insufficient_data"
+            elif n_measured[vid] < self.min_trips:
+                status, component, key = "insufficient_data", "none", None
             elif sensor_alert and component.startswith(SENSOR_COMPONENTS_PREFIX):
                 status = "inspect"
             elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
@@ -465,7 +468,10 @@ class FleetScorer:
                 "score_z": float(score_z),
                 "status": status,
                 "suspected_component": component,
-                "evidence": self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last),
+                "evidence": (self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last)
+                             if status != "insufficient_data" else
+                             f"{int(n_measured[vid])} of the last {int(n_recent[vid])} trips carried the signals "
+                             "the features need (a logger with vehicle speed and lamps only measures no sensor)"),
                 "flagged_since": flagged,
                 "last_trip": last.at[vid, "start_time"],
                 "suggestion": suggestion_for(component) if status != "ok" else "",
@@ -524,7 +530,11 @@ class FleetScorer:
         parts = []
         if vid in lamp_last.index and bool(lamp_last.at[vid, "lamp_event"]):
             dtc = str(lamp_last.at[vid, "dtc"] or "").strip()
-            parts.append("warning lamp lit" + (f" with trouble code {dtc}" if dtc else " across key cycles"))
+            if bool(lamp_last.at[vid, "lamp_on"]):
+                parts.append("warning lamp lit" + (f" with trouble code {dtc}" if dtc else " across key cycles"))
+            else:
+                parts.append(f"trouble code {dtc} stored on {lamp_last.at[vid, 'event_date']}, lamp out since "
+                             "(an intermittent fault)")
         if key is not None:
             feats = [f for f in self.features_ if evidence_key(f) == key]
             f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
@@ -606,6 +616,27 @@ def _latched(raised: np.ndarray, sustained: np.ndarray, key: np.ndarray) -> np.n
     run_id = np.cumsum(new_run)
     on = pd.Series(np.asarray(raised, dtype=float)).groupby(run_id).cummax().to_numpy() > 0
     return on & sustained
+
+
+def _lamp_state(lamps: pd.DataFrame, ts: pd.DataFrame) -> pd.DataFrame:
+    """Per vehicle: the last trip's ``lamp_on``, and ``lamp_event`` / ``dtc`` / ``event_date``
+    of the last lamp event of the current service epoch that still stands: a trouble code
+    stays stored (an intermittent fault's lamp goes out at the next key cycle, and the
+    vehicle still needs service until a repair starts a new epoch: DESIGN.md, "What the
+    lamp means" and "Safety"); a lamp event without a code stands while the lamp is lit."""
+    df = lamps.merge(ts[["trip_id", "epoch_key"]], on="trip_id", how="left").sort_values("start_time")
+    last = df.groupby("vehicle_id").tail(1).set_index("vehicle_id")
+    coded = df["dtc"].fillna("").astype(str).str.strip() != ""
+    is_last = df["trip_id"].isin(last["trip_id"])
+    current = df["epoch_key"] == df["vehicle_id"].map(last["epoch_key"])
+    # a code stays stored; a lamp without one (it may be ESC-off twice running) counts while lit
+    events = df[df["lamp_event"] & current & (coded | is_last)]
+    ev = events.groupby("vehicle_id").tail(1).set_index("vehicle_id")
+    out = last[["lamp_on"]].copy()
+    out["lamp_event"] = out.index.isin(ev.index)
+    out["dtc"] = ev["dtc"].reindex(out.index).where(out["lamp_event"], last["dtc"]).fillna("")
+    out["event_date"] = pd.to_datetime(ev["start_time"].reindex(out.index), utc=True).dt.date
+    return out
 
 
 def _run_start(ts: pd.DataFrame, column: str) -> dict:
