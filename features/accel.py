@@ -16,6 +16,7 @@ from features.signals import (
     TripArrays,
     median,
     moving_mean,
+    nan_median,
     seconds,
     smooth_derivative,
     three_cornered_hat,
@@ -53,7 +54,7 @@ def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> 
         elif seconds(windows.standstill, trip) < REST_MIN_S:
             row.nan(name, "no_standstill")
         else:
-            row.set(name, np.nanmedian(trip.signals[signal][windows.standstill]) / G0_MPS2)
+            row.set(name, nan_median(trip.signals[signal][windows.standstill]) / G0_MPS2)
 
 
 def calibrated_or_raw(trip: TripArrays, ref: WheelReference) -> np.ndarray:

@@ -90,7 +90,9 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
     """
     median = median_of_four(speeds) if median is None else median
     with np.errstate(invalid="ignore", divide="ignore"):
-        sane = np.all(np.abs(speeds / median - 1.0) < GLITCH_FRAC, axis=0)
+        deviation = np.divide(speeds, median)  # |v / median − 1|, in place
+    deviation -= 1.0
+    sane = np.all(np.abs(deviation, out=deviation) < GLITCH_FRAC, axis=0)
     kept = speeds[:, sane]
     reference = kept.mean(axis=0) if against == "mean" else median[sane]
     return kept.sum(axis=1) / reference.sum()
@@ -206,7 +208,8 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         log_speed = np.log(np.where(usable, trip.wheels, np.nan))
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
     fast = (log_speed - moving_mean(log_speed, width))[:, usable]
-    pair_var = {(i, j): robust_spread(fast[i] - fast[j]) ** 2 for i, j in WHEEL_PAIRS}
+    first, second = np.array(WHEEL_PAIRS).T
+    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(fast[first] - fast[second]) ** 2))
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
         step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)

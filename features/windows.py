@@ -122,8 +122,9 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
         if trip.has(name):
             confirmations += 1
             x = trip.signals[name]
-            with np.errstate(invalid="ignore"):
-                still &= np.isfinite(x) & (moving_std(x, width) < limit)
+            if still.any():  # no wheel at rest: no quiet trace to look for
+                with np.errstate(invalid="ignore"):
+                    still &= np.isfinite(x) & (moving_std(x, width) < limit)
     if confirmations == 0:
         return np.zeros(trip.n, dtype=bool), "standstill_unconfirmed"
     if trip.has("brake"):

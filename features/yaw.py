@@ -18,6 +18,7 @@ from features.signals import (
     deming_fit,
     median,
     moving_mean,
+    nan_median,
     seconds,
     white_noise_variance,
     window_samples,
@@ -54,7 +55,7 @@ def yaw_rest_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> Non
     elif seconds(windows.standstill, trip) < REST_MIN_S:
         row.nan("yaw_rest_dps", "no_standstill")
     else:
-        row.set("yaw_rest_dps", _to_deg(np.nanmedian(trip.signals["yaw_rate"][windows.standstill])))
+        row.set("yaw_rest_dps", _to_deg(nan_median(trip.signals["yaw_rate"][windows.standstill])))
 
 
 def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference, signal: str) -> str | None:
@@ -119,7 +120,7 @@ def steer_center_feature(row: FeatureRow, trip: TripArrays, windows: Windows) ->
         row.nan("steer_center_deg", windows.straight_reason or "no_straight_cruise")
     else:
         values = trip.signals["steering_angle"][windows.straight_by_yaw_and_wheels]
-        row.set("steer_center_deg", _to_deg(np.nanmedian(values)))
+        row.set("steer_center_deg", _to_deg(nan_median(values)))
 
 
 def model_yaw_rate(trip: TripArrays, spec: VehicleSpec, speed: np.ndarray, centre_rad: float = 0.0) -> np.ndarray:
