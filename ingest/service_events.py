@@ -64,11 +64,12 @@ class ServiceEventsSummary:
     added: int = 0
     notes_updated: int = 0
     already_stored: int = 0
+    removed: int = 0
     rejects: list[tuple[int, str]] = field(default_factory=list)
 
     @property
     def changed(self) -> bool:
-        return bool(self.added or self.notes_updated)
+        return bool(self.added or self.notes_updated or self.removed)
 
     @property
     def exit_code(self) -> int:
@@ -77,7 +78,7 @@ class ServiceEventsSummary:
     def describe(self) -> str:
         lines = [f"service events from {self.source}: {self.rows} row(s): {self.added} added, "
                  f"{self.notes_updated} note(s) updated, {self.already_stored} already stored, "
-                 f"{len(self.rejects)} rejected"]
+                 f"{len(self.rejects)} rejected" + (f", {self.removed} removed" if self.removed else "")]
         lines += [f"  line {row}: {reason}" for row, reason in self.rejects[:_SHOWN]]
         if len(self.rejects) > _SHOWN:
             lines.append(f"  ... and {len(self.rejects) - _SHOWN} more (published rejects table)")
@@ -162,11 +163,14 @@ def import_service_events(path: Path, store: Store, today: dt.date | None = None
 
 
 def import_service_rows(rows: pd.DataFrame, store: Store, source: str, today: dt.date | None = None,
-                        extra_rejects: list[tuple[int, str]] = ()) -> ServiceEventsSummary:
+                        extra_rejects: list[tuple[int, str]] = (), replace_source: bool = False
+                        ) -> ServiceEventsSummary:
     """Store validated events from ``rows`` (see ``validate_events``) under ``source`` and publish.
 
     ``source`` is recorded with each new event and names the input in the
-    ``rejects`` table; that input's earlier rejects are replaced.
+    ``rejects`` table; that input's earlier rejects are replaced. With
+    ``replace_source``, ``rows`` is the whole of that source: its stored events
+    that ``rows`` no longer holds are removed (an entry deleted in the dashboard).
     """
     today = today or dt.datetime.now(dt.timezone.utc).date()
     summary = ServiceEventsSummary(source=source, rows=len(rows) + len(extra_rejects))
@@ -180,7 +184,7 @@ def import_service_rows(rows: pd.DataFrame, store: Store, source: str, today: dt
                                 "logs before service events", exit_code=4)
             events, rejects = validate_events(rows, known, today)
             summary.rejects = sorted([*extra_rejects, *rejects])
-            _store(con, events, source, summary)
+            _store(con, events, source, summary, replace_source)
             catalog.publish(con, store)
             publish_service_events(con, store)
         finally:
@@ -188,7 +192,7 @@ def import_service_rows(rows: pd.DataFrame, store: Store, source: str, today: dt
     return summary
 
 
-def _store(con, events: pd.DataFrame, source: str, summary: ServiceEventsSummary) -> None:
+def _store(con, events: pd.DataFrame, source: str, summary: ServiceEventsSummary, replace_source: bool = False) -> None:
     incoming = events.assign(source=source, imported_at=pd.Timestamp(dt.datetime.now(dt.timezone.utc)))
     con.execute("BEGIN TRANSACTION")
     try:
@@ -203,6 +207,9 @@ def _store(con, events: pd.DataFrame, source: str, summary: ServiceEventsSummary
         con.execute("INSERT INTO service_events SELECT vehicle_id, CAST(date AS DATE), kind, component, note, "
                     "source, imported_at FROM _events "
                     "ON CONFLICT (vehicle_id, date, kind, component) DO UPDATE SET note = excluded.note")
+        if replace_source:
+            summary.removed = len(con.execute(f"DELETE FROM service_events s WHERE s.source = ? AND NOT EXISTS "
+                                              f"(SELECT 1 FROM _events e WHERE {key}) RETURNING 1", [source]).fetchall())
         con.unregister("_events")
         con.execute("DELETE FROM rejects WHERE source_file = ?", [source])
         catalog.insert(con, "rejects", catalog.frame(

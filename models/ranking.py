@@ -1,4 +1,4 @@
-"""Reading the published ranking back: the ``rank`` and ``vehicle`` commands."""
+"""Reading the published ranking back: the ``rank`` (and ``rank --changes``) and ``vehicle`` commands."""
 
 from __future__ import annotations
 
@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from models.attribution import SAFETY_NOTE
+from models.changes import CHANGE_COLUMNS, RunChanges
 from tracktrue.errors import UserError
 from tracktrue.schema import RANKING_COLUMNS, STATUSES, VEHICLE_STATUS_COLUMNS
 from tracktrue.store import Store
@@ -25,7 +26,8 @@ def ranking_table(store: Store, statuses: list[str] | None = None, top: int | No
         df = df[df["status"].isin(statuses)]
     if top is not None:
         df = df.head(top)
-    return df[list(VEHICLE_STATUS_COLUMNS)].reset_index(drop=True)
+    # a store scored before models.stability existed lacks its columns: they read as empty
+    return df.reindex(columns=list(VEHICLE_STATUS_COLUMNS)).reset_index(drop=True)
 
 
 def _contract_rows(df: pd.DataFrame) -> pd.DataFrame:
@@ -57,6 +59,9 @@ def format_ranking(df: pd.DataFrame, fmt: str) -> str:
         "last trip": rows["last_trip"].str.slice(0, 16).str.replace("T", " "),
     })
     lines = [shown.to_string(index=False)]
+    notes = [f"{v}: {n}" for v, n in zip(df["vehicle_id"], _notes(df)) if n]
+    if notes:
+        lines += ["", *notes]
     flagged = rows[rows["evidence"].astype(str) != ""]
     if len(flagged):
         lines.append("")
@@ -65,9 +70,39 @@ def format_ranking(df: pd.DataFrame, fmt: str) -> str:
     return "\n".join(lines)
 
 
+def _notes(df: pd.DataFrame) -> list[str]:
+    """Per row: why the status is what it is (held, verifying, snoozed) and its label."""
+    note = df["status_note"].fillna("").astype(str)
+    label = df["label"].fillna("").astype(str)
+    return [f"{n}; {lb}" if n and lb else n or lb for n, lb in zip(note, label)]
+
+
+def format_changes(changes: RunChanges, fmt: str) -> str:
+    """``csv``/``json``: CHANGE_COLUMNS; ``table``: a heading and one line per vehicle."""
+    rows = changes.table[list(CHANGE_COLUMNS)].copy()
+    rows[["from_score", "to_score"]] = rows[["from_score", "to_score"]].astype(float).round(4)
+    if fmt == "csv":
+        buf = io.StringIO()
+        rows.to_csv(buf, index=False)
+        return buf.getvalue().rstrip("\n")
+    if fmt == "json":
+        return json.dumps(json.loads(rows.to_json(orient="records")), indent=2, ensure_ascii=False)
+    if fmt != "table":
+        raise UserError(f"unknown format {fmt!r}; choose table, csv or json")
+    lines = [changes.heading()]
+    for r in rows.itertuples():
+        what = f"{r.from_status} → {r.to_status}"
+        if r.to_component != r.from_component and pd.notna(r.to_component) and pd.notna(r.from_component):
+            what += f" ({r.from_component} → {r.to_component})"
+        elif isinstance(r.to_component, str) and r.to_component != "none":
+            what += f" ({r.to_component})"
+        lines.append(f"  {r.change:<13} {r.vehicle_id:<12} {what}")
+    return "\n".join(lines)
+
+
 def vehicle_report(store: Store, vehicle_id: str, n_trips: int = 20) -> str:
     """One vehicle's status, trip history, score trend and implicated features."""
-    status = store.read_table("vehicle_status")
+    status = store.read_table("vehicle_status").reindex(columns=list(VEHICLE_STATUS_COLUMNS))
     row = status[status["vehicle_id"] == vehicle_id]
     if row.empty:
         raise UserError(f"unknown vehicle {vehicle_id!r}: it has no scored trips (known: {len(status)} vehicles)")
@@ -79,6 +114,9 @@ def vehicle_report(store: Store, vehicle_id: str, n_trips: int = 20) -> str:
              f"rank {int(r['rank'])}, status {r['status']}, score {r['score']:.3f}, as of {r['as_of']}",
              f"suspected component: {r['suspected_component']}"
              + (f", flagged since {r['flagged_since']}" if pd.notna(r["flagged_since"]) else "")]
+    for note in _notes(row):
+        if note:
+            lines.append(f"note: {note}")
     if r["evidence"]:
         lines.append(f"evidence: {r['evidence']}")
     if r["suggestion"]:

@@ -1,8 +1,11 @@
 """``run_scoring``: read what features/ and ingest/ published, score, publish models/' tables.
 
 Tables published (columns: tracktrue.schema; extra columns only appended):
-``trip_scores``, ``vehicle_drift``, ``vehicle_status``, ``peer_bands`` and
-``model_runs`` (one row appended per run). Each publish is an atomic
+``trip_scores``, ``vehicle_drift``, ``vehicle_status``, ``peer_bands``,
+``status_history`` and ``model_runs`` (one row per vehicle / one row appended
+per run). ``vehicle_status`` is the scorer's ranking after models.stability
+(hysteresis against ``status_history``, verification after repairs,
+no-fault-found labels, snoozes); evaluation scores without that step. Each publish is an atomic
 generation switch, so a crash mid-run leaves every table at its previous
 generation and a rerun finishes the job. Nothing is unpickled: the fitted
 model is refitted from trip_features on every run and recorded as parameters.
@@ -10,6 +13,7 @@ model is refitted from trip_features on every run and recorded as parameters.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import json
 import platform as _platform
@@ -23,6 +27,7 @@ import sklearn
 from models.lamps import has_lamp_summary, lamp_events, lamp_summary_from_features, read_trip_lamps
 from models.peers import peer_bands
 from models.scorer import FleetScorer
+from models.stability import StabilityRules, history_rows, stabilise
 from tracktrue import __version__
 from tracktrue.errors import UserError
 from tracktrue.schema import (PEER_BANDS_COLUMNS, TRIP_SCORES_COLUMNS, VEHICLE_DRIFT_COLUMNS,
@@ -108,14 +113,28 @@ def run_scoring(store: Store, as_of: dt.date | None = None, progress: bool = Fal
     trip_features takes seconds, so no bar is drawn."""
     with store.run_lock("score", "tracktrue score"):
         fleet = score_fleet(store, as_of)
-        run_id = uuid.uuid4().hex[:12]
-        _publish(store, fleet, run_id)
+        run_id, created_at = uuid.uuid4().hex[:12], pd.Timestamp.now(tz="UTC")
+        status = stabilise(fleet.status, fleet.trip_scores, fleet.as_of, history=_table(store, "status_history"),
+                           events=_table(store, "service_events"), snoozes=_table(store, "snoozes"),
+                           rules=stability_rules(fleet.scorer))
+        fleet = dataclasses.replace(fleet, status=status)
+        _publish(store, fleet, run_id, created_at)
     counts = fleet.status["status"].value_counts().to_dict()
     return ScoringSummary(run_id, fleet.as_of, len(fleet.trip_scores), fleet.status["vehicle_id"].nunique(),
                           counts, len(fleet.scorer.features_), fleet.scorer.cusum_h_, fleet.lamp_source)
 
 
-def _publish(store: Store, fleet: ScoredFleet, run_id: str) -> None:
+def stability_rules(scorer: FleetScorer) -> StabilityRules:
+    """A repair is verified once the new baseline is taken and the vehicle score rests on
+    trips after it (models.stability module doc)."""
+    return StabilityRules(verify_trips=max(scorer.baseline_trips, scorer.vehicle_trips))
+
+
+def _table(store: Store, name: str) -> pd.DataFrame | None:
+    return store.read_table(name) if store.has_table(name) else None
+
+
+def _publish(store: Store, fleet: ScoredFleet, run_id: str, created_at: pd.Timestamp) -> None:
     sc = fleet.scorer
     ts = fleet.trip_scores.copy()
     ts["run_id"] = run_id
@@ -131,7 +150,10 @@ def _publish(store: Store, fleet: ScoredFleet, run_id: str) -> None:
     status["run_id"] = run_id
     lead = list(VEHICLE_STATUS_COLUMNS)
     store.publish_table("vehicle_status", status[lead + [c for c in status.columns if c not in lead]])
-    healthy = fleet.status.set_index("vehicle_id")["status"].eq("ok")
+    history = _table(store, "status_history")
+    rows = history_rows(fleet.status, run_id, created_at, fleet.as_of)
+    store.publish_table("status_history", pd.concat([history, rows], ignore_index=True) if history is not None else rows)
+    healthy = fleet.status.set_index("vehicle_id")["raw_status"].eq("ok")
     joined = fleet.trip_features.merge(ts[["trip_id", "peer_group"]], on="trip_id")
     bands = peer_bands(joined, sc.features_, healthy)
     store.publish_table("peer_bands", bands[list(PEER_BANDS_COLUMNS)])
@@ -142,7 +164,7 @@ def _publish(store: Store, fleet: ScoredFleet, run_id: str) -> None:
                                              "fallback_peer_groups": sc.fallback_groups_}}
     row = pd.DataFrame([{
         "run_id": run_id,
-        "created_at": pd.Timestamp.now(tz="UTC"),
+        "created_at": created_at,
         "as_of": fleet.as_of,
         "params_json": json.dumps(params, default=_json_default, sort_keys=True),
         "versions_json": json.dumps({"tracktrue": __version__, "scikit-learn": sklearn.__version__,

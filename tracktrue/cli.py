@@ -139,12 +139,31 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--as-of", type=_date, metavar="DATE", help="use only trips that started before the end of DATE")
     p.set_defaults(func=cmd_score)
 
-    p = sub.add_parser("rank", help="print the ranked fleet", description="Print the published ranking.")
+    p = sub.add_parser("rank", help="print the ranked fleet (or what changed since the previous run)",
+                       description="Print the published ranking. With --changes: the vehicles whose published "
+                       "status changed between the last scoring run and the one before it (new, escalated, "
+                       "de-escalated, cleared alerts, another component, other status changes).")
     _add_store(p)
     p.add_argument("--top", type=_positive_int, metavar="N", help="only the first N rows")
     p.add_argument("--status", metavar="S", action="append", help="only this status (repeatable)")
     p.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format")
+    p.add_argument("--changes", action="store_true", help="list what changed instead of the ranking")
+    p.add_argument("--since", type=_date, metavar="DATE",
+                   help="with --changes: compare with the last run as of a day before DATE")
     p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("snooze", help="put off a vehicle's alert until a date, with a reason",
+                       description="Snooze a vehicle's current alert: it shows as snoozed (with reason and "
+                       "expiry) and ranks below the active alerts until the ranking's as-of date passes DATE. A "
+                       "lit lamp, a higher status or another suspected component cancels the snooze. Stored in "
+                       "the dashboard's file beside the dashboard's own snoozes; takes effect at the next "
+                       "`tracktrue update`. A vehicle with a lit lamp cannot be snoozed.")
+    p.add_argument("vehicle_id", metavar="VEHICLE")
+    _add_store(p)
+    p.add_argument("--until", type=_date, metavar="DATE", help="last as-of date the snooze covers (YYYY-MM-DD)")
+    p.add_argument("--reason", metavar="TEXT", help="why (shown with the snooze)")
+    p.add_argument("--clear", action="store_true", help="remove the vehicle's snooze")
+    p.set_defaults(func=cmd_snooze)
 
     p = sub.add_parser("vehicle", help="one vehicle's trip history and implicated features",
                        description="Print one vehicle's status, score trend and implicated features over its trips.")
@@ -245,8 +264,41 @@ def cmd_score(args) -> int:
 def cmd_rank(args) -> int:
     from models import format_ranking, ranking_table
 
-    table = ranking_table(Store.open(args.store), statuses=args.status, top=args.top)
-    print(format_ranking(table, args.format))
+    store = Store.open(args.store)
+    if args.changes:
+        return _print_changes(store, args)
+    if args.since is not None:
+        raise UserError("--since goes with --changes")
+    print(format_ranking(ranking_table(store, statuses=args.status, top=args.top), args.format))
+    return EXIT_OK
+
+
+def _print_changes(store: Store, args) -> int:
+    from models.changes import run_changes
+    from models.ranking import format_changes
+
+    if args.status or args.top:
+        raise UserError("--changes lists every change; it takes no --status or --top")
+    history = store.read_table("status_history") if store.has_table("status_history") else None
+    print(format_changes(run_changes(history, since=args.since), args.format))
+    return EXIT_OK
+
+
+def cmd_snooze(args) -> int:
+    from dashboard.snoozes import clear_snooze, snooze_vehicle
+
+    store = Store.open(args.store)
+    if args.clear:
+        if args.until or args.reason:
+            raise UserError("--clear takes no --until or --reason")
+        found = clear_snooze(store, args.vehicle_id)
+        print(f"{args.vehicle_id}: snooze removed" if found else f"{args.vehicle_id} had no snooze")
+        return EXIT_OK
+    if args.until is None or args.reason is None:
+        raise UserError("a snooze needs --until DATE and --reason TEXT (or --clear)")
+    row = snooze_vehicle(store, args.vehicle_id, args.until, args.reason)
+    print(f"{args.vehicle_id}: {row['snoozed_status']} snoozed until {row['until']} ({row['reason']}); "
+          "takes effect at the next `tracktrue update`")
     return EXIT_OK
 
 

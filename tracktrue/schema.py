@@ -151,6 +151,7 @@ STATUS_HISTORY_COLUMNS: tuple[str, ...] = (
     "suspected_component",
     "flagged_since",
     "last_trip",
+    "last_repair",  # date of the latest repair-kind service event the run knew of
 )
 
 #: Snoozes (``tracktrue snooze`` and the dashboard), published by ``tracktrue update`` as ``snoozes``.

@@ -1,13 +1,18 @@
 """``tracktrue update``: the one command a nightly scheduler runs.
 
 Orchestration only: ingest what is new (logs, registry, service events,
-service events entered in the dashboard), compute features for new trips,
-score and publish, each step being the stage's own public function. Every
+service events entered in the dashboard, snoozes), compute features for new
+trips, score and publish, each step being the stage's own public function. Every
 stage publishes atomically, so a failure or a kill leaves each table at a
 complete generation and the next run finishes the job.
 
-Scoring is skipped when its inputs (trip_features, vehicles, service_events)
-are exactly what the last successful run scored: a night without new logs
+The dashboard's service entries are the whole of the ``dashboard`` source:
+an entry deleted there is removed from ``service_events``. Snoozes (from
+``tracktrue snooze`` and the dashboard, both kept in the dashboard's SQLite
+file) are published whole as ``snoozes``.
+
+Scoring is skipped when its inputs (trip_features, vehicles, service_events,
+snoozes) are exactly what the last successful run scored: a night without new logs
 computes nothing. A run lock (``runs/update.lock``) keeps two runs apart.
 Each run appends to ``runs/update.log``; a run that finishes writes
 ``runs/last_success.json`` (time, counts, the scoring inputs' fingerprint),
@@ -51,7 +56,7 @@ DASHBOARD_SOURCE = "dashboard"
 #: Stages whose UserError means an earlier stage gave them nothing to work on (exit 4).
 NEEDS_EARLIER_STAGES = frozenset({"features", "score"})
 #: Tables whose content decides whether scoring has anything new to do.
-SCORING_INPUTS = ("trip_features", "vehicles", "service_events")
+SCORING_INPUTS = ("trip_features", "vehicles", "service_events", "snoozes")
 
 
 class StageFailed(UserError):
@@ -136,9 +141,10 @@ def _run_stages(store, paths, vehicles_csv, service_events_csv, profile, trip_ga
     if service_events_csv is not None:
         service.append(step("service events", import_service_events, Path(service_events_csv), store))
     entries = _dashboard_entries(store)
-    if len(entries):
+    if len(entries) or _has_dashboard_events(store):
         service.append(step("dashboard service events", import_service_rows, entries, store,
-                            source=DASHBOARD_SOURCE))
+                            source=DASHBOARD_SOURCE, replace_source=True))
+    _publish_snoozes(store)
     computed = step("features", run_features, store, progress=progress)
     inputs = _fingerprint(store)
     previous = read_last_success(store) or {}
@@ -185,6 +191,23 @@ def _dashboard_entries(store: Store) -> pd.DataFrame:
 
     entries = read_service_entries(store)
     return entries.rename(columns={"entry_id": "line"})[["line", "vehicle_id", "date", "kind", "component", "note"]]
+
+
+def _has_dashboard_events(store: Store) -> bool:
+    """Whether service_events holds entries from the dashboard (which a deletion there may remove)."""
+    if not store.has_table("service_events"):
+        return False
+    return bool((store.read_table("service_events")["source"] == DASHBOARD_SOURCE).any())
+
+
+def _publish_snoozes(store: Store) -> None:
+    """Publish the snoozes kept in the dashboard's SQLite file when they differ from the published ones."""
+    from dashboard.snoozes import read_snoozes
+
+    snoozes = read_snoozes(store)
+    if store.has_table("snoozes") and store.read_table("snoozes").astype(str).equals(snoozes.astype(str)):
+        return
+    store.publish_table("snoozes", snoozes)
 
 
 def _fingerprint(store: Store) -> str:
