@@ -119,11 +119,15 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
     if sources.shape[1] < 2:
         row.nan_all(names, "too_little_rolling")
         return
-    # covariance matrix (np.cov's, without a BLAS call that waits for busy cores):
-    # var(x_i − x_j) = C_ii + C_jj − 2·C_ij, all ten pairs at once
-    centred = sources - sources.mean(axis=1, keepdims=True)
-    cov = np.einsum("ik,jk->ij", centred, centred) / (sources.shape[1] - 1)
-    pair_var = {(i, j): cov[i, i] + cov[j, j] - 2.0 * cov[i, j] for i in range(5) for j in range(i + 1, 5)}
+    # sample variance of each of the ten differences, straight from the
+    # differences: the five estimates share most of their signal, and
+    # C_ii + C_jj − 2·C_ij from a covariance matrix would cancel it in rounding
+    pairs = [(i, j) for i in range(5) for j in range(i + 1, 5)]
+    first, second = np.array(pairs).T
+    differences = sources[first] - sources[second]
+    differences -= differences.mean(axis=1, keepdims=True)
+    variances = np.einsum("ij,ij->i", differences, differences) / (sources.shape[1] - 1)
+    pair_var = dict(zip(pairs, variances))
     own_var = three_cornered_hat(pair_var, 5)
     for name, var in zip(names, own_var[:4]):
         row.set(name, np.sqrt(var) / G0_MPS2)

@@ -147,11 +147,25 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     if valid.all():
         return uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0) / _window_share(x.shape[-1], width)
     total = uniform_filter1d(np.where(valid, x, 0.0), width, axis=-1, mode="constant", cval=0.0)
-    if valid.ndim == 2 and (valid == valid[0]).all():
-        valid = valid[0]
-    count = uniform_filter1d(valid.astype(np.float64), width, axis=-1, mode="constant", cval=0.0)
+    count = _valid_count(valid, width)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(count > 0.5 / width, total / count, np.nan)
+
+
+def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
+    """Moving share of valid samples; rows missing the same samples as the first row share its filter."""
+    def share(mask: np.ndarray) -> np.ndarray:
+        return uniform_filter1d(mask.astype(np.float64), width, axis=-1, mode="constant", cval=0.0)
+
+    if valid.ndim == 1:
+        return share(valid)
+    like_first = (valid == valid[0]).all(axis=1)
+    if like_first.all():
+        return share(valid[0])
+    count = np.empty(valid.shape)
+    count[like_first] = share(valid[0])
+    count[~like_first] = share(valid[~like_first])
+    return count
 
 
 def _window_share(n: int, width: int) -> np.ndarray:
@@ -198,9 +212,9 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     if enough.any():
         filled = rows[enough]
         idx = np.arange(rows.shape[-1])
-        for i, ok in enumerate(valid[enough]):
+        for row, ok in zip(filled, valid[enough]):
             if not ok.all():
-                filled[i, ~ok] = np.interp(idx[~ok], idx[ok], filled[i, ok])
+                row[~ok] = np.interp(idx[~ok], idx[ok], row[ok])
         out[enough] = correlate1d(filled, _savgol_derivative_weights(w, 1.0 / trip.rate_hz), axis=-1,
                                   mode="nearest")
         out[~valid | near_gap(trip, w // 2)] = np.nan
@@ -372,9 +386,21 @@ def three_cornered_hat(pair_variances: Mapping[tuple[int, int], float], n_source
     pairs = [(p, v) for p, v in pair_variances.items() if np.isfinite(v)]
     if not pairs:
         return np.full(n_sources, np.nan)
-    design = np.zeros((len(pairs), n_sources))
-    for row, ((i, j), _) in enumerate(pairs):
-        design[row, i] = design[row, j] = 1.0
-    solution = np.linalg.lstsq(design, np.array([v for _, v in pairs]), rcond=None)[0]
-    determined = design.sum(axis=0) >= 2
+    solve, determined = _pair_solver(tuple(p for p, _ in pairs), n_sources)
+    solution = solve @ np.array([v for _, v in pairs])
     return np.where(determined, np.clip(solution, 0.0, None), np.nan)
+
+
+@lru_cache(maxsize=64)
+def _pair_solver(pairs: tuple[tuple[int, int], ...], n_sources: int) -> tuple[np.ndarray, np.ndarray]:
+    """Least-squares solver (the pseudo-inverse) of the pair design, and which sources it determines.
+
+    The same few designs recur trip after trip, so the pseudo-inverse is
+    computed once rather than a least-squares solve per trip.
+    """
+    design = np.zeros((len(pairs), n_sources))
+    for row, (i, j) in enumerate(pairs):
+        design[row, i] = design[row, j] = 1.0
+    solve = np.linalg.pinv(design)
+    solve.setflags(write=False)
+    return solve, design.sum(axis=0) >= 2
