@@ -1,0 +1,260 @@
+"""Gates: a feature is NaN (with a countable reason) when its signals' step, rate or staleness
+alone would move it by more than its noise budget; and the trip's ``logger_kind``.
+
+Logs arrive from loggers of very different quality (DESIGN.md, "Field
+realities"): polled PIDs at 1–5 Hz with 1 km/h steps and stale repeats,
+bus capture at 50–100 Hz with 0.01 km/h. A feature computed from a log too
+coarse for it is not a weak measurement but a wrong one (a 1 km/h step
+across a 1.5 m track is 10 deg/s of wheel-derived yaw), and a healthy
+vehicle's wrong feature becomes a false alarm. So every feature that came out
+finite is checked against the figures of the signals it uses, measured on
+this trip's samples (tracktrue.signal_quality.fresh_rate, and the smallest
+step of features.signals): q the step, f the fresh values per second while
+moving, s the share of stale repeats.
+
+Noise model (Bennett 1948; Widrow & Kollár, *Quantization Noise*, 2008): a
+signal quantised with step q that moves across steps carries an error
+uniform in ±q/2, standard deviation e = q/√12, independent from one fresh
+value to the next. A feature that averages n fresh values sees e/√n; one
+that measures a spread sees e itself; one that takes the median of a value
+held still (a rest offset, a steering centre) sees no dither at all and can
+be off by q/2. Each gate states its mode, the feature's sensitivity k to
+each input signal (feature units per SI unit), the averaging time T at the
+feature's own minimum of qualifying data (so a trip that just qualifies is
+still inside the budget), and the budget B. Modes:
+
+* ``averaged``: σ = √(Σ (k·e)² / n), n = max(1, f·T) per input;
+* ``spread``: σ = √(Σ (k·e)²) (per sample, nothing averages it away);
+* ``held``: σ = Σ k·q/2 (worst case of a median of a steady quantised value);
+* ``derivative``: the spread of a Savitzky–Golay slope over N = max(5, 1.5 s·f)
+  fresh values of spacing Δ = 1/f. Its weights are i/(Δ·Σi²) with
+  Σi² = N(N²−1)/12 (Savitzky & Golay 1964: a quadratic's slope at the
+  centre is the straight line's), so σ = √(Σ (k·e)²·12/(Δ²·N(N²−1))).
+
+B is a third of the smallest change the feature exists to find (a 3σ change
+then stands out of one trip's quantisation noise); the smallest changes are
+stated beside each gate, "from memory" where no single source gives them.
+Some features also compare two signals over a short window to pick their
+samples (1 s means for yaw, the straight-road and axle-agreement votes of
+features.windows and features.wheels): a second, ``averaged`` gate with T
+that window and B half the vote's tolerance keeps quantisation alone from
+flipping the vote. Derivative and high-pass features need enough fresh
+values inside their filter (``min_fresh_hz``).
+
+Reasons (FeatureRow's nan_reasons, counted per run): ``signal_missing`` (a
+signal the feature needs is not in the log at all: a telematics log has no
+wheel speeds), ``resolution_too_coarse``, ``rate_too_low`` and
+``stale_values`` (the gate would pass if the repeats were fresh values).
+A feature already NaN keeps its own reason, except that a missing input
+signal is named as the reason.
+
+``logger_kind`` is inferred from the wheel speeds' figures alone, never from
+any label of the log: ``telematics`` when no wheel speed is logged;
+``polled`` when the wheel speeds (median over the logged wheels) arrive at
+under 8 values per second while moving (stale repeats counted, so a logger's
+row rate, not the signal's changes, decides), or step by more than
+0.05 km/h; ``bus_capture`` otherwise. The limits sit between the two kinds
+DESIGN.md describes (polled 1–5 Hz and 0.1–1 km/h; bus capture 50–100 Hz and
+0.01 km/h) with a margin on each side. The stale share does not decide: a
+fine step at a high rate repeats often without being stale.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from features.row import FeatureRow
+from features.signals import TripArrays, median_of_four
+from features.spec import VehicleSpec
+from tracktrue.schema import POSITIONS, WHEEL_SPEED_COLUMNS
+from tracktrue.signal_quality import MOVING_MPS, fresh_rate
+from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
+
+#: Columns the gates add to a trip's row.
+GATING_COLUMNS: tuple[str, ...] = ("logger_kind",)
+LOGGER_KINDS: tuple[str, ...] = ("bus_capture", "polled", "telematics")
+POLLED_BELOW_HZ = 8.0
+POLLED_STEP_ABOVE_MPS = 0.05 * KPH_MPS
+#: Speed the sensitivities are taken at when the trip never moves (DESIGN.md's cruise speed).
+FALLBACK_SPEED_MPS = 8.0
+#: The Savitzky–Golay window of features.signals.smooth_derivative, s.
+DERIVATIVE_S = 1.5
+#: The shortest comparison the yaw and lateral features make (features.signals.SMOOTH_S).
+COMPARE_S = 1.0
+_RMS_UNIFORM = 1.0 / math.sqrt(12.0)
+
+
+@dataclass(frozen=True)
+class Figures:
+    """One signal's figures on this trip: step (SI), fresh values per second while moving, stale share."""
+
+    step: float
+    fresh_hz: float
+    stale: float
+
+    @property
+    def row_hz(self) -> float:
+        """Values per second counting the stale repeats as if they were fresh."""
+        return self.fresh_hz / (1.0 - self.stale) if self.stale < 1.0 else math.nan
+
+
+@dataclass(frozen=True)
+class Gate:
+    """One condition a feature's inputs must meet (module docstring)."""
+
+    mode: str  #: averaged | spread | held | derivative
+    inputs: tuple[tuple[str, float], ...]  #: (signal, sensitivity k in feature units per SI unit)
+    budget: float  #: largest quantisation noise allowed, feature units
+    average_s: float = 0.0  #: T of the averaged mode
+    min_fresh_hz: float = 0.0
+
+    def noise(self, figures: dict[str, Figures], stale_as_fresh: bool = False) -> float:
+        total = 0.0
+        for signal, k in self.inputs:
+            fig = figures[signal]
+            if self.mode == "held":
+                total += abs(k) * fig.step / 2.0
+                continue
+            e2 = (k * fig.step * _RMS_UNIFORM) ** 2
+            if self.mode == "derivative":
+                rate = fig.row_hz if stale_as_fresh else fig.fresh_hz
+                n = max(5.0, DERIVATIVE_S * rate)
+                e2 *= 12.0 * rate * rate / (n * (n * n - 1.0))
+            if self.mode == "averaged":
+                rate = fig.row_hz if stale_as_fresh else fig.fresh_hz
+                e2 /= max(1.0, rate * self.average_s) if math.isfinite(rate) else 1.0
+            total += e2
+        return total if self.mode == "held" else math.sqrt(total)
+
+    def failure(self, figures: dict[str, Figures]) -> str | None:
+        """Why the inputs cannot carry the feature, or None. NaN figures (a step never seen) pass."""
+        for signal, _ in self.inputs:
+            fig = figures[signal]
+            if fig.fresh_hz < self.min_fresh_hz:
+                return "stale_values" if fig.row_hz >= self.min_fresh_hz else "rate_too_low"
+        if self.noise(figures) > self.budget:
+            return "stale_values" if not self.noise(figures, stale_as_fresh=True) > self.budget else \
+                "resolution_too_coarse"
+        return None
+
+
+def signal_figures(trip: TripArrays) -> dict[str, Figures]:
+    """Figures of every numeric signal the trip logs, over its moving samples (module docstring)."""
+    speed = median_of_four(trip.wheels) if any(trip.has(c) for c in WHEEL_SPEED_COLUMNS) \
+        else trip.signals["vehicle_speed"]
+    with np.errstate(invalid="ignore"):
+        moving = speed >= MOVING_MPS
+    if not moving.any():
+        moving = np.ones(trip.n, bool)
+    out = {}
+    for name in trip.resolution:
+        if trip.has(name):
+            rate, stale = fresh_rate(trip.t, trip.signal(name), moving)
+            out[name] = Figures(trip.resolution[name], rate, stale)
+    return out
+
+
+def logger_kind(figures: dict[str, Figures]) -> str:
+    """bus_capture, polled or telematics from the wheel speeds' figures (module docstring)."""
+    wheels = [figures[c] for c in WHEEL_SPEED_COLUMNS if c in figures]
+    if not wheels:
+        return "telematics"
+    rate = np.nanmedian([w.row_hz for w in wheels]) if any(math.isfinite(w.row_hz) for w in wheels) else math.nan
+    step = np.nanmedian([w.step for w in wheels]) if any(math.isfinite(w.step) for w in wheels) else math.nan
+    if rate < POLLED_BELOW_HZ or step > POLLED_STEP_ABOVE_MPS:
+        return "polled"
+    return "bus_capture"
+
+
+def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
+    """Each feature's gates, with sensitivities at the trip's typical moving speed ``speed_mps``.
+
+    Budgets (a third of the smallest change worth finding, module docstring):
+    wheel ratio 0.3 % (about a 20 kPa pressure loss, from memory); yaw and
+    steering-yaw offsets 0.5 deg/s, yaw gain 5 % (yaw-rate sensors are
+    specified to a few %, from memory); steering centre 3 deg (a wheel
+    visibly off centre, from memory); accelerometer offsets 0.02 g (DESIGN.md:
+    below a 5 % grade's 0.05 g). Jitter keeps features.wheels' 0.25 %
+    (quantisation alone above it drowns a damaged ring's jitter); the wheel's
+    false acceleration 0.03 g (what a damaged ring's tooth error puts on a
+    derivative, from memory). Averaging times are each feature's own minimum
+    of qualifying data (features.wheels, features.yaw, features.accel).
+    """
+    v = speed_mps
+    t_r, t_f = spec.track_rear_m, spec.track_front_m
+    rear_yaw_dps = 1.0 / (t_r * DEG_RAD)  # r = (v_rr − v_rl)/t_r, per wheel, in deg/s per m/s
+    yaw_dps = 1.0 / DEG_RAD
+    wheels_yaw = (("wheel_speed_rl", rear_yaw_dps), ("wheel_speed_rr", rear_yaw_dps))
+    front_yaw = (("wheel_speed_fl", 1.0 / (t_f * DEG_RAD)), ("wheel_speed_fr", 1.0 / (t_f * DEG_RAD)))
+
+    def vote(tolerance_dps: float, inputs=wheels_yaw) -> Gate:
+        """Quantisation alone must stay under half a vote's tolerance over the 1 s comparison."""
+        return Gate("averaged", inputs, tolerance_dps / 2.0, average_s=COMPARE_S)
+
+    axles = vote(1.0, wheels_yaw + front_yaw)  # features.wheels.AXLE_AGREE_RADPS
+    straight = vote(1.5)  # features.windows.STRAIGHT_YAW_RADPS
+    turning = vote(3.0)  # features.yaw.STEER_TURN_MIN_RADPS
+    gates: dict[str, list[Gate]] = {}
+    for pos in POSITIONS:
+        own = f"wheel_speed_{pos}"
+        gates[f"wheel_ratio_{pos}_pct"] = [Gate("averaged", ((own, 100.0 / v),), 0.1, average_s=30.0)]
+        # spread of a 2 s high-pass (features.wheels): its filter needs five fresh values
+        gates[f"wheel_jitter_{pos}_pct"] = [Gate("spread", ((own, 100.0 / v),), 0.25, min_fresh_hz=5 / 2.0)]
+        # a wheel reads zero below 0.3 m/s: the step must leave that distinguishable (held: one step)
+        gates[f"wheel_dropouts_{pos}"] = [Gate("held", ((own, 1.0),), 0.3 / 2.0)]
+        # the smoothed derivative needs five fresh values inside its 1.5 s window
+        gates[f"wheel_accel_disagree_{pos}_g"] = [
+            Gate("derivative", ((own, 1.0 / G0_MPS2),), 0.03 / 3, min_fresh_hz=5 / DERIVATIVE_S)]
+    gates["yaw_rest_dps"] = [Gate("held", (("yaw_rate", yaw_dps),), 0.5 / 3)]
+    offset = Gate("averaged", (("yaw_rate", yaw_dps), *wheels_yaw), 0.5 / 3, average_s=30.0)
+    # slope noise σ_b = σ_x / (spread of x · √n), x turning at least 3 deg/s
+    gain = Gate("averaged", (("yaw_rate", yaw_dps / 3.0), *((s, k / 3.0) for s, k in wheels_yaw)), 0.05 / 3,
+                average_s=40.0)
+    gates["yaw_offset_dps"] = [offset, axles]
+    gates["yaw_gain"] = [gain, axles]
+    gates["steer_center_deg"] = [Gate("held", (("steering_angle", 1.0 / DEG_RAD),), 1.0), straight]
+    model_dps = v / (spec.steering_ratio * spec.wheelbase_m * DEG_RAD)  # single-track r per steering-wheel rad
+    gates["steer_yaw_residual_dps"] = [
+        Gate("averaged", (("yaw_rate", yaw_dps), ("steering_angle", model_dps)), 0.5 / 3, average_s=10.0), turning]
+    for signal in ("accel_long", "accel_lat"):
+        gates[f"{signal}_rest_g"] = [Gate("held", ((signal, 1.0 / G0_MPS2),), 0.02 / 3)]
+    # the distance-weighted mean of a_x − dv/dt: dv/dt's errors telescope (its mean is Δv/T), a_x's average
+    gates["accel_long_residual_g"] = [Gate("averaged", (("accel_long", 1.0 / G0_MPS2),), 0.02 / 3,
+                                           average_s=1000.0 / v)]
+    lat_wheels = tuple((s, v / t_r / G0_MPS2) for s, _ in wheels_yaw)  # v·r per wheel speed, in g
+    gates["lat_residual_g"] = [Gate("averaged", (("accel_lat", 1.0 / G0_MPS2), *lat_wheels), 0.02 / 3,
+                                    average_s=30.0), axles]
+    return gates
+
+
+def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[str, object]:
+    """Apply every feature's gates to ``row`` (module docstring); returns the GATING_COLUMNS."""
+    figures = signal_figures(trip)
+    gates = feature_gates(spec, _typical_speed(trip))
+    for name, checks in gates.items():
+        if name not in row.values:
+            continue
+        if any(s not in figures for gate in checks for s, _ in gate.inputs):
+            row.nan(name, "signal_missing")
+            continue
+        if not math.isfinite(row.values[name]):
+            continue
+        for gate in checks:
+            reason = gate.failure(figures)
+            if reason:
+                row.nan(name, reason)
+                break
+    return {"logger_kind": logger_kind(figures)}
+
+
+def _typical_speed(trip: TripArrays) -> float:
+    """Median speed while moving (median of four wheels, else the vehicle speed), DESIGN.md's cruise speed if none."""
+    speed = median_of_four(trip.wheels)
+    if not np.isfinite(speed).any():
+        speed = trip.signals["vehicle_speed"]
+    with np.errstate(invalid="ignore"):
+        moving = speed[speed >= MOVING_MPS]
+    return float(np.median(moving)) if moving.size else FALLBACK_SPEED_MPS
