@@ -18,6 +18,7 @@ from features.accel import (
     wheel_accel_features,
 )
 from features.columns import SampleColumns, n_rows, sample_columns
+from features.gating import GATING_COLUMNS, gate_features
 from features.row import FeatureRow
 from features.signals import TripArrays, seconds, trip_arrays
 from features.spec import VehicleSpec
@@ -51,8 +52,8 @@ STEERFIT_COLUMNS: tuple[str, ...] = (
 LAMP_COLUMNS: tuple[str, ...] = ("lamp_abs_on", "lamp_esc_on", "dtc")
 #: Every column extract_trip_features returns, in order.
 ROW_COLUMNS: tuple[str, ...] = (
-    *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *RESOLUTION_COLUMNS, *LAMP_COLUMNS, *STEERFIT_COLUMNS,
-    "nan_reasons",
+    *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *GATING_COLUMNS, *RESOLUTION_COLUMNS, *LAMP_COLUMNS,
+    *STEERFIT_COLUMNS, "nan_reasons",
 )
 #: Signals whose missing samples count towards missing_fraction (when logged at all).
 CORE_SIGNALS: tuple[str, ...] = tuple(s for s in NUMERIC_SIGNALS if s != "vehicle_speed")
@@ -75,6 +76,7 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
         out = row.as_dict()
         out.update(_empty_quality())
         out.update(_lamps(columns))
+        out.update(gate_features(row, trip_arrays(columns), vehicle))
         return {c: out.get(c, np.nan) for c in ROW_COLUMNS}
     trip = trip_arrays(columns)
     windows = find_windows(trip, vehicle)
@@ -92,8 +94,10 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
     accel_long_residual_feature(row, trip, windows)
     lat_residual_feature(row, trip, vehicle, windows, ref)
     wheel_accel_features(row, trip, windows, ref)
+    gating = gate_features(row, trip, vehicle)
 
     out = row.as_dict()
+    out.update(gating)
     out.update(_quality(trip, windows, distance_km))
     out.update(_lamps(columns))
     out.update(steering_fit_sums(trip, vehicle, windows))
