@@ -4,6 +4,8 @@ The dashboard never opens the batch catalog (DESIGN.md), so an entry waits
 here until the next ``tracktrue update`` run reads it with
 ``read_service_entries`` and folds it into the published ``service_events``
 table (source ``dashboard``), where models/ sees it beside the imported ones.
+The entries here are the whole of that source: an entry deleted here is
+removed from ``service_events`` by the next update.
 """
 
 from __future__ import annotations
@@ -47,6 +49,13 @@ def add_service_entry(store: Store, vehicle_id: str, date: dt.date, kind: str, c
                     "VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT (vehicle_id, date, kind, component) "
                     "DO UPDATE SET note = excluded.note, recorded_at = excluded.recorded_at",
                     (vehicle_id, date.isoformat(), kind, component, note.strip(), now))
+
+
+def delete_service_entry(store: Store, entry_id: int) -> bool:
+    """Delete a (mistyped) entry; the next update removes it from service_events too. False if it was gone."""
+    with connect(store) as con:
+        con.executescript(_SCHEMA)
+        return con.execute("DELETE FROM service_entries WHERE entry_id = ?", (int(entry_id),)).rowcount > 0
 
 
 def read_service_entries(store: Store) -> pd.DataFrame:

@@ -1,4 +1,5 @@
-"""The vehicle record's service events: what is published, what waits for the next update, and the entry form."""
+"""The vehicle record's service events: what is published, what waits for the next update, the entry
+form, and deleting a mistyped entry (after a confirmation)."""
 
 from __future__ import annotations
 
@@ -7,7 +8,7 @@ import datetime as dt
 import pandas as pd
 import streamlit as st
 
-from dashboard.service_entries import add_service_entry, read_service_entries
+from dashboard.service_entries import add_service_entry, delete_service_entry, read_service_entries
 from dashboard.tables import Missing, query
 from dashboard.wording import component_label
 from tracktrue.schema import COMPONENTS, SERVICE_EVENT_AREAS, SERVICE_EVENT_KINDS
@@ -38,8 +39,8 @@ def service_event_section(store: Store, vehicle: str) -> None:
     published = (pd.DataFrame(columns=[*KEY, "note", "source"]) if isinstance(published, Missing)
                  else published.assign(date=lambda f: f["date"].astype(str)))
     entries = read_service_entries(store)
-    entries = entries.loc[entries["vehicle_id"] == vehicle, [*KEY, "note"]]
-    waiting = entries.merge(published[KEY], on=KEY, how="left", indicator=True)
+    entries = entries.loc[entries["vehicle_id"] == vehicle]
+    waiting = entries[[*KEY, "note"]].merge(published[KEY], on=KEY, how="left", indicator=True)
     waiting = waiting.loc[waiting["_merge"] == "left_only"].drop(columns="_merge").assign(
         source="dashboard (waiting for the next `tracktrue update`)")
     shown = pd.concat([published, waiting], ignore_index=True)
@@ -48,3 +49,30 @@ def service_event_section(store: Store, vehicle: str) -> None:
     else:
         st.dataframe(shown.assign(component=shown["component"].map(component_label)), hide_index=True,
                      width="stretch", key="vehicle_service_events")
+    if len(entries):
+        _delete_entry(store, entries)
+
+
+def _delete_entry(store: Store, entries: pd.DataFrame) -> None:
+    """Pick one of the vehicle's dashboard entries, delete it after a second click that confirms."""
+    labels = {int(r.entry_id): f"{r.date} {r.kind.replace('_', ' ')} {component_label(r.component)}".strip()
+              + (f" ({r.note})" if r.note else "") for r in entries.itertuples()}
+    c1, c2 = st.columns([3, 1], vertical_alignment="bottom")
+    picked = c1.selectbox("Entry made here", list(labels), format_func=labels.get, key="service_delete_pick",
+                          help="Entries made in the dashboard can be deleted; imported events are changed "
+                          "in their CSV file.")
+    if c2.button("Delete entry", key="service_delete"):
+        st.session_state["service_delete_pending"] = picked
+    pending = st.session_state.get("service_delete_pending")
+    if pending not in labels:
+        return
+    st.warning(f"Delete the entry {labels[pending]}? The next `tracktrue update` removes it from the "
+               "published service events, and scoring forgets the baseline restart it caused.")
+    y, n = st.columns(2)
+    if y.button("Yes, delete it", key="service_delete_confirm", type="primary"):
+        delete_service_entry(store, pending)
+        del st.session_state["service_delete_pending"]
+        st.rerun()
+    if n.button("Keep it", key="service_delete_cancel"):
+        del st.session_state["service_delete_pending"]
+        st.rerun()

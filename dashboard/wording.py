@@ -11,12 +11,25 @@ SAFETY_CAUTION = (
     "licensed practice govern the work."
 )
 
+#: One per tracktrue.schema.STATUSES, in that order (a test checks both).
 STATUS_LABELS: dict[str, str] = {
     "lamp_lit": "Lamp lit",
     "inspect": "Inspect",
     "watch": "Watch",
+    "snoozed": "Snoozed",
+    "verifying": "Verifying repair",
     "ok": "Fine",
     "insufficient_data": "Too few trips",
+}
+
+#: What rank --changes and the triage page's "What changed" call each change (models.changes).
+CHANGE_LABELS: dict[str, str] = {
+    "new": "New alert",
+    "escalated": "Escalated",
+    "de-escalated": "De-escalated",
+    "cleared": "Cleared",
+    "component": "Other component",
+    "other": "Other status change",
 }
 
 OUTCOME_LABELS: dict[str, str] = {

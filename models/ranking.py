@@ -59,7 +59,7 @@ def format_ranking(df: pd.DataFrame, fmt: str) -> str:
         "last trip": rows["last_trip"].str.slice(0, 16).str.replace("T", " "),
     })
     lines = [shown.to_string(index=False)]
-    notes = [f"{v}: {n}" for v, n in zip(df["vehicle_id"], _notes(df)) if n]
+    notes = [f"{v}: {n}" for v, n in zip(df["vehicle_id"], status_notes(df)) if n]
     if notes:
         lines += ["", *notes]
     flagged = rows[rows["evidence"].astype(str) != ""]
@@ -70,10 +70,14 @@ def format_ranking(df: pd.DataFrame, fmt: str) -> str:
     return "\n".join(lines)
 
 
-def _notes(df: pd.DataFrame) -> list[str]:
-    """Per row: why the status is what it is (held, verifying, snoozed) and its label."""
-    note = df["status_note"].fillna("").astype(str)
-    label = df["label"].fillna("").astype(str)
+def status_notes(df: pd.DataFrame) -> list[str]:
+    """Per row: why the status is what it is (held, verifying, snoozed) and its label.
+
+    The dashboard shows the same text. A store scored before models.stability
+    existed has neither column: empty notes."""
+    empty = pd.Series("", index=df.index)
+    note = df.get("status_note", empty).fillna("").astype(str)
+    label = df.get("label", empty).fillna("").astype(str)
     return [f"{n}; {lb}" if n and lb else n or lb for n, lb in zip(note, label)]
 
 
@@ -114,7 +118,7 @@ def vehicle_report(store: Store, vehicle_id: str, n_trips: int = 20) -> str:
              f"rank {int(r['rank'])}, status {r['status']}, score {r['score']:.3f}, as of {r['as_of']}",
              f"suspected component: {r['suspected_component']}"
              + (f", flagged since {r['flagged_since']}" if pd.notna(r["flagged_since"]) else "")]
-    for note in _notes(row):
+    for note in status_notes(row):
         if note:
             lines.append(f"note: {note}")
     if r["evidence"]:

@@ -13,8 +13,8 @@ import numpy as np
 import pandas as pd
 
 from tracktrue.ids import trip_id, vehicle_bucket
-from tracktrue.schema import (CORE_FEATURES, COMPONENTS, PEER_BANDS_COLUMNS, QUALITY_COLUMNS, STATUSES,
-                              TRIP_SCORES_COLUMNS, VEHICLE_DRIFT_COLUMNS, VEHICLE_STATUS_COLUMNS)
+from tracktrue.schema import (CORE_FEATURES, COMPONENTS, PEER_BANDS_COLUMNS, QUALITY_COLUMNS, STATUS_HISTORY_COLUMNS,
+                              STATUSES, TRIP_SCORES_COLUMNS, VEHICLE_DRIFT_COLUMNS, VEHICLE_STATUS_COLUMNS)
 from tracktrue.store import Store, atomic_write_parquet
 
 FIRST_DAY = dt.date(2026, 3, 2)
@@ -42,6 +42,7 @@ def build_store(root, n_vehicles: int = 12, days: int = 20, trips_per_day: float
     status = _status(rng, vehicles, scores)
     store.publish_table("vehicles", vehicles)
     store.publish_table("vehicle_status", status)
+    store.publish_table("status_history", _history(status))
     store.publish_table("trip_scores", scores, partition_by="bucket_key")
     store.publish_table("trip_features", features)
     store.publish_table("vehicle_drift", _drift(scores))
@@ -122,8 +123,33 @@ def _status(rng, vehicles, scores) -> pd.DataFrame:
     out["suggestion"] = ["Check the rear-left tone ring and sensor air gap"] + [""] * (n - 1)
     out["lamp_on"] = out["status"] == "lamp_lit"
     out["as_of"] = pd.Timestamp(FIRST_DAY, tz="UTC") + pd.Timedelta(days=30)
+    out["raw_status"] = out["status"]
+    out["status_note"] = ""
+    out["label"] = ""
+    out["snoozed_until"] = None
+    out["snooze_reason"] = ""
     assert set(out["status"]) <= set(STATUSES) and set(out["suspected_component"]) <= set(COMPONENTS)
     return out[list(VEHICLE_STATUS_COLUMNS)]
+
+
+#: The run before the fixture's ranking: rank 1 was only on watch, rank 3 was fine.
+EARLIER_STATUS = {0: ("watch", "wheel_sensor_rl"), 2: ("ok", "none")}
+
+
+def _history(status) -> pd.DataFrame:
+    """Two runs: the one before (EARLIER_STATUS changed) and the published ranking."""
+    runs = []
+    for k, run_id in enumerate(("run-before", "run-latest")):
+        run = status.assign(run_id=run_id, created_at=pd.Timestamp("2026-04-01T02:00Z") + pd.Timedelta(days=k),
+                            as_of=(pd.Timestamp(FIRST_DAY) + pd.Timedelta(days=29 + k)).date(),
+                            held_status=status["status"], last_repair=None)
+        if k == 0:
+            for i, (st, comp) in EARLIER_STATUS.items():
+                run.loc[i, ["status", "held_status", "raw_status", "suspected_component"]] = [st, st, st, comp]
+        runs.append(run)
+    out = pd.concat(runs, ignore_index=True)
+    out["flagged_since"] = pd.to_datetime(out["flagged_since"]).dt.date
+    return out[list(STATUS_HISTORY_COLUMNS)]
 
 
 def _drift(scores) -> pd.DataFrame:

@@ -19,6 +19,7 @@ from dashboard.scheduling import is_working_day
 from dashboard.wording import SAFETY_CAUTION, STATUS_LABELS, component_label
 from test_dashboard_fixture import build_store
 from test_dashboard_plan_rules import check_rfc5545_lines, unfold
+from tracktrue.schema import STATUSES
 from tracktrue.store import STORE_ENV, Store
 
 APP = Path(dashboard.__file__).with_name("app.py")
@@ -84,7 +85,8 @@ def test_triage_lists_vehicles_in_the_published_order_which_is_the_order_of_trac
 def test_triage_counts_each_status_and_shows_the_safety_caution(store):
     at = open_page()
     counts = store.read_table("vehicle_status")["status"].value_counts()
-    shown = {m.label: int(m.value) for m in at.metric}
+    assert tuple(STATUS_LABELS) == STATUSES  # every status has its wording, in rank order
+    shown = {m.label: int(m.value) for m in at.metric[:len(STATUSES)]}
     assert shown == {label: int(counts.get(s, 0)) for s, label in STATUS_LABELS.items()}
     assert SAFETY_CAUTION in texts(at.warning)
     assert "lamp lit" in texts(at.error)

@@ -43,7 +43,7 @@ with st.expander("Workshop capacity and plan start", icon=":material/tune:"):
         if per_day != saved.get(depot, workshop.DEFAULT_CAPACITY_PER_DAY):
             workshop.set_capacity(store, depot, per_day)
     if st.button("Propose new dates for entries not moved by hand", key="replan"):
-        left = planner.replan(store, st.session_state["plan_start"])
+        left = planner.replan(store, st.session_state["plan_start"], status)
         st.session_state["plan_note"] = "Plan re-proposed by priority." + (
             f" No free day within a year for {', '.join(left)}." if left else "")
         st.rerun()
@@ -53,7 +53,7 @@ plan = workshop.open_plan(store)
 if plan.empty:
     st.info("The plan is empty. Tick vehicles on **Fleet triage** and add them to the plan.")
 else:
-    detail = planner.with_status(plan, status)
+    detail = planner.with_status(plan, status, planner.service_dates(store))
     view = pd.DataFrame({
         "Date": detail["planned_date"],
         "Day": [d.strftime("%a") for d in detail["planned_date"]],
@@ -63,6 +63,7 @@ else:
         "Status": detail["status"].map(STATUS_LABELS),
         "Suspected component": detail["suspected_component"].map(component_label),
         "What to check": detail["suggestion"],
+        "Service": detail["service_note"],
         "Moved by hand": detail["pinned"],
     })
     st.dataframe(view, key="plan_table", hide_index=True, width="stretch",

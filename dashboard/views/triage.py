@@ -1,11 +1,15 @@
-"""Fleet triage: the published ranking, filters, and picking vehicles for the workshop plan."""
+"""Fleet triage: the published ranking, filters, picking vehicles for the workshop plan, snoozing one,
+and what changed since the previous run."""
 
 import pandas as pd
 import streamlit as st
 
 from dashboard import planner, workshop
+from dashboard.changes_view import changes_section
 from dashboard.common import PICKED_VEHICLE, current_store, safety_caution, table_or_note
+from dashboard.snooze_form import snooze_section
 from dashboard.wording import STATUS_LABELS, component_label
+from models.ranking import status_notes
 from tracktrue.schema import STATUSES
 
 RANKING_SQL = "SELECT * FROM {vehicle_status} ORDER BY rank"
@@ -55,6 +59,7 @@ if ranking is not None:
         "Depot": shown["depot"].fillna("—"),
         "Status": shown["status"].map(STATUS_LABELS),
         "Suspected component": shown["suspected_component"].map(component_label),
+        "Note": status_notes(shown),
         "Evidence": shown["evidence"],
         "Flagged since": pd.to_datetime(shown["flagged_since"]).dt.strftime("%Y-%m-%d").fillna(""),
         "Last trip": shown["last_trip"],
@@ -71,13 +76,14 @@ if ranking is not None:
             "Last trip": st.column_config.DatetimeColumn(format="YYYY-MM-DD HH:mm"),
             "Planned for": st.column_config.DateColumn(format="ddd YYYY-MM-DD"),
             "Evidence": st.column_config.TextColumn(width="large"),
+            "Note": st.column_config.TextColumn(width="medium"),
         })
     picked = shown.iloc[event.selection.rows] if event.selection.rows else shown.iloc[0:0]
 
     left, right = st.columns(2)
     if left.button(f"Add {len(picked)} ticked to the workshop plan", key="add_to_plan",
                    disabled=picked.empty, type="primary"):
-        booked, unplaced = planner.add_vehicles(store, picked[["vehicle_id", "depot", "rank"]],
+        booked, unplaced = planner.add_vehicles(store, picked[["vehicle_id", "depot", "rank", "status"]],
                                                 st.session_state.get("plan_start") or planner.default_start())
         already = len(picked) - len(booked) - len(unplaced)
         text = f"Planned {len(booked)} vehicle(s)." + (f" {already} already on the plan." if already else "")
@@ -88,3 +94,10 @@ if ranking is not None:
     if right.button("Open vehicle record", key="open_vehicle", disabled=len(picked) != 1):
         st.session_state[PICKED_VEHICLE] = picked["vehicle_id"].iloc[0]
         st.switch_page("views/vehicle.py")
+    if len(picked) == 1:
+        with st.expander(f"Snooze {picked['vehicle_id'].iloc[0]}", icon=":material/snooze:"):
+            snooze_section(store, picked.iloc[0], key="triage_snooze")
+    else:
+        st.caption("Tick one vehicle to snooze it.")
+
+    changes_section(store)

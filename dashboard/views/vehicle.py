@@ -8,9 +8,11 @@ from dashboard import charts, workshop
 from dashboard.common import PICKED_VEHICLE, current_store, table_or_note
 from dashboard.outcomes import read_outcomes
 from dashboard.service_form import service_event_section
+from dashboard.snooze_form import snooze_section
 from dashboard.tables import Missing, has_columns, query, trip_samples
 from dashboard.traces import drilldown_frames
 from dashboard.wording import OUTCOME_LABELS, STATUS_LABELS, component_label, feature_unit
+from models.ranking import status_notes
 
 #: How many of the vehicle's most implicated features are drawn by default.
 N_IMPLICATED = 3
@@ -49,6 +51,11 @@ if isinstance(row["suggestion"], str) and row["suggestion"]:
     st.markdown(f"**What to check:** {row['suggestion']}")
 if isinstance(row["evidence"], str) and row["evidence"]:
     st.markdown(f"**Evidence:** {row['evidence']}")
+for note in status_notes(status.loc[status["vehicle_id"] == vehicle]):
+    if note:
+        st.info(note, icon=":material/info:")
+with st.expander("Snooze", icon=":material/snooze:"):
+    snooze_section(store, row, key="vehicle_snooze")
 
 # ---- workshop history -------------------------------------------------------
 outcomes = read_outcomes(store)
