@@ -19,9 +19,11 @@ value to the next. A feature that averages n fresh values sees e/√n; one
 that measures a spread sees e itself; one that takes the median of a value
 held still (a rest offset, a steering centre) sees no dither at all and can
 be off by q/2. Each gate states its mode, the feature's sensitivity k to
-each input signal (feature units per SI unit), the averaging time T at the
-feature's own minimum of qualifying data (so a trip that just qualifies is
-still inside the budget), and the budget B. Modes:
+each input signal (feature units per SI unit), the averaging time T and the
+budget B. T is the feature's own minimum of qualifying data (so a trip that
+just qualifies is still inside the budget), except for the two features that
+average over most of the driving (the wheel ratios' distance sums and the
+distance-weighted a_x − dv/dt), whose T is the trip's moving time. Modes:
 
 * ``averaged``: σ = √(Σ (k·e)² / n), n = max(1, f·T) per input;
 * ``spread``: σ = √(Σ (k·e)²) (per sample, nothing averages it away);
@@ -108,10 +110,11 @@ class Gate:
     mode: str  #: averaged | spread | held | derivative
     inputs: tuple[tuple[str, float], ...]  #: (signal, sensitivity k in feature units per SI unit)
     budget: float  #: largest quantisation noise allowed, feature units
-    average_s: float = 0.0  #: T of the averaged mode
+    average_s: float | None = 0.0  #: T of the averaged mode; None: the trip's moving time
     min_fresh_hz: float = 0.0
 
-    def noise(self, figures: dict[str, Figures], stale_as_fresh: bool = False) -> float:
+    def noise(self, figures: dict[str, Figures], moving_s: float, stale_as_fresh: bool = False) -> float:
+        average_s = moving_s if self.average_s is None else self.average_s
         total = 0.0
         for signal, k in self.inputs:
             fig = figures[signal]
@@ -125,28 +128,25 @@ class Gate:
                 e2 *= 12.0 * rate * rate / (n * (n * n - 1.0))
             if self.mode == "averaged":
                 rate = fig.row_hz if stale_as_fresh else fig.fresh_hz
-                e2 /= max(1.0, rate * self.average_s) if math.isfinite(rate) else 1.0
+                e2 /= max(1.0, rate * average_s) if math.isfinite(rate) else 1.0
             total += e2
         return total if self.mode == "held" else math.sqrt(total)
 
-    def failure(self, figures: dict[str, Figures]) -> str | None:
+    def failure(self, figures: dict[str, Figures], moving_s: float) -> str | None:
         """Why the inputs cannot carry the feature, or None. NaN figures (a step never seen) pass."""
         for signal, _ in self.inputs:
             fig = figures[signal]
             if fig.fresh_hz < self.min_fresh_hz:
                 return "stale_values" if fig.row_hz >= self.min_fresh_hz else "rate_too_low"
-        if self.noise(figures) > self.budget:
-            return "stale_values" if not self.noise(figures, stale_as_fresh=True) > self.budget else \
+        if self.noise(figures, moving_s) > self.budget:
+            return "stale_values" if not self.noise(figures, moving_s, stale_as_fresh=True) > self.budget else \
                 "resolution_too_coarse"
         return None
 
 
 def signal_figures(trip: TripArrays) -> dict[str, Figures]:
     """Figures of every numeric signal the trip logs, over its moving samples (module docstring)."""
-    speed = median_of_four(trip.wheels) if any(trip.has(c) for c in WHEEL_SPEED_COLUMNS) \
-        else trip.signals["vehicle_speed"]
-    with np.errstate(invalid="ignore"):
-        moving = speed >= MOVING_MPS
+    moving = _moving_speed(trip) >= MOVING_MPS
     if not moving.any():
         moving = np.ones(trip.n, bool)
     out = {}
@@ -181,7 +181,8 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     (quantisation alone above it drowns a damaged ring's jitter); the wheel's
     false acceleration 0.03 g (what a damaged ring's tooth error puts on a
     derivative, from memory). Averaging times are each feature's own minimum
-    of qualifying data (features.wheels, features.yaw, features.accel).
+    of qualifying data (features.wheels, features.yaw, features.accel), or
+    None for the trip's moving time (module docstring).
     """
     v = speed_mps
     t_r, t_f = spec.track_rear_m, spec.track_front_m
@@ -200,7 +201,7 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     gates: dict[str, list[Gate]] = {}
     for pos in POSITIONS:
         own = f"wheel_speed_{pos}"
-        gates[f"wheel_ratio_{pos}_pct"] = [Gate("averaged", ((own, 100.0 / v),), 0.1, average_s=30.0)]
+        gates[f"wheel_ratio_{pos}_pct"] = [Gate("averaged", ((own, 100.0 / v),), 0.1, average_s=None)]
         # spread of a 2 s high-pass (features.wheels): its filter needs five fresh values
         gates[f"wheel_jitter_{pos}_pct"] = [Gate("spread", ((own, 100.0 / v),), 0.25, min_fresh_hz=5 / 2.0)]
         # a wheel reads zero below 0.3 m/s: the step must leave that distinguishable (held: one step)
@@ -208,7 +209,10 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
         # the smoothed derivative needs five fresh values inside its 1.5 s window
         gates[f"wheel_accel_disagree_{pos}_g"] = [
             Gate("derivative", ((own, 1.0 / G0_MPS2),), 0.03 / 3, min_fresh_hz=5 / DERIVATIVE_S)]
-    gates["yaw_rest_dps"] = [Gate("held", (("yaw_rate", yaw_dps),), 0.5 / 3)]
+    # needed but adding no noise (k = 0): the wheels that judge standstill (features.windows), whose step
+    # does not enter a rest value, and dv/dt, whose errors telescope in a distance-weighted mean
+    needs_wheels = tuple((c, 0.0) for c in WHEEL_SPEED_COLUMNS)
+    gates["yaw_rest_dps"] = [Gate("held", (("yaw_rate", yaw_dps), *needs_wheels), 0.5 / 3)]
     offset = Gate("averaged", (("yaw_rate", yaw_dps), *wheels_yaw), 0.5 / 3, average_s=30.0)
     # slope noise σ_b = σ_x / (spread of x · √n), x turning at least 3 deg/s
     gain = Gate("averaged", (("yaw_rate", yaw_dps / 3.0), *((s, k / 3.0) for s, k in wheels_yaw)), 0.05 / 3,
@@ -220,10 +224,10 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     gates["steer_yaw_residual_dps"] = [
         Gate("averaged", (("yaw_rate", yaw_dps), ("steering_angle", model_dps)), 0.5 / 3, average_s=10.0), turning]
     for signal in ("accel_long", "accel_lat"):
-        gates[f"{signal}_rest_g"] = [Gate("held", ((signal, 1.0 / G0_MPS2),), 0.02 / 3)]
+        gates[f"{signal}_rest_g"] = [Gate("held", ((signal, 1.0 / G0_MPS2), *needs_wheels), 0.02 / 3)]
     # the distance-weighted mean of a_x − dv/dt: dv/dt's errors telescope (its mean is Δv/T), a_x's average
-    gates["accel_long_residual_g"] = [Gate("averaged", (("accel_long", 1.0 / G0_MPS2),), 0.02 / 3,
-                                           average_s=1000.0 / v)]
+    gates["accel_long_residual_g"] = [Gate("averaged", (("accel_long", 1.0 / G0_MPS2), *needs_wheels), 0.02 / 3,
+                                           average_s=None)]
     lat_wheels = tuple((s, v / t_r / G0_MPS2) for s, _ in wheels_yaw)  # v·r per wheel speed, in g
     gates["lat_residual_g"] = [Gate("averaged", (("accel_lat", 1.0 / G0_MPS2), *lat_wheels), 0.02 / 3,
                                     average_s=30.0), axles]
@@ -233,7 +237,10 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
 def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[str, object]:
     """Apply every feature's gates to ``row`` (module docstring); returns the GATING_COLUMNS."""
     figures = signal_figures(trip)
-    gates = feature_gates(spec, _typical_speed(trip))
+    speed = _moving_speed(trip)
+    moving = speed >= MOVING_MPS
+    moving_s = float(trip.dt[moving].sum())
+    gates = feature_gates(spec, float(np.median(speed[moving])) if moving.any() else FALLBACK_SPEED_MPS)
     for name, checks in gates.items():
         if name not in row.values:
             continue
@@ -243,18 +250,15 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
         if not math.isfinite(row.values[name]):
             continue
         for gate in checks:
-            reason = gate.failure(figures)
+            reason = gate.failure(figures, moving_s)
             if reason:
                 row.nan(name, reason)
                 break
     return {"logger_kind": logger_kind(figures)}
 
 
-def _typical_speed(trip: TripArrays) -> float:
-    """Median speed while moving (median of four wheels, else the vehicle speed), DESIGN.md's cruise speed if none."""
-    speed = median_of_four(trip.wheels)
-    if not np.isfinite(speed).any():
-        speed = trip.signals["vehicle_speed"]
-    with np.errstate(invalid="ignore"):
-        moving = speed[speed >= MOVING_MPS]
-    return float(np.median(moving)) if moving.size else FALLBACK_SPEED_MPS
+def _moving_speed(trip: TripArrays) -> np.ndarray:
+    """The trip's speed: median of four wheels, else the vehicle speed; NaN read as standing."""
+    speed = median_of_four(trip.wheels) if any(trip.has(c) for c in WHEEL_SPEED_COLUMNS) \
+        else trip.signals["vehicle_speed"]
+    return np.where(np.isfinite(speed), speed, 0.0)
