@@ -148,8 +148,8 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
         return uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0) / _window_share(x.shape[-1], width)
     total = uniform_filter1d(np.where(valid, x, 0.0), width, axis=-1, mode="constant", cval=0.0)
     count = _valid_count(valid, width)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(count > 0.5 / width, total / count, np.nan)
+    out = np.full(np.broadcast_shapes(total.shape, count.shape), np.nan)
+    return np.divide(total, count, out=out, where=count > 0.5 / width)
 
 
 def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
@@ -180,8 +180,10 @@ def _window_share(n: int, width: int) -> np.ndarray:
 
 def moving_std(x: np.ndarray, width: int) -> np.ndarray:
     """Centred moving standard deviation (population), NaN-skipping."""
-    mean, mean_sq = moving_mean(np.stack([x, x * x]), width)  # one call: both miss the same samples
-    return np.sqrt(np.clip(mean_sq - mean * mean, 0.0, None))
+    x = np.asarray(x)
+    both = moving_mean(np.concatenate([x.reshape(-1, x.shape[-1]), (x * x).reshape(-1, x.shape[-1])]), width)
+    mean, mean_sq = both[: both.shape[0] // 2], both[both.shape[0] // 2:]  # one call: x and x² miss the same samples
+    return np.sqrt(np.clip(mean_sq - mean * mean, 0.0, None)).reshape(x.shape)
 
 
 def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
@@ -208,18 +210,26 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     rows = np.atleast_2d(x)
     valid = np.isfinite(rows)
     enough = valid.sum(axis=-1) >= w
-    out = np.full(rows.shape, np.nan)
-    if enough.any():
-        filled = rows[enough]
-        idx = np.arange(rows.shape[-1])
-        for row, ok in zip(filled, valid[enough]):
-            if not ok.all():
-                row[~ok] = np.interp(idx[~ok], idx[ok], row[ok])
-        out[enough] = correlate1d(filled, _savgol_derivative_weights(w, 1.0 / trip.rate_hz), axis=-1,
-                                  mode="nearest")
+    if not enough.any():
+        return np.full(np.shape(x), np.nan)
+    complete = valid.all(axis=-1)
+    filled = rows[enough] if not (enough.all() and complete.all()) else rows
+    idx = np.arange(rows.shape[-1])
+    for row, ok, whole in zip(filled, valid[enough], complete[enough]):
+        if not whole:
+            row[~ok] = np.interp(idx[~ok], idx[ok], row[ok])
+    weights = _savgol_derivative_weights(w, 1.0 / trip.rate_hz)
+    if enough.all():
+        out = correlate1d(filled, weights, axis=-1, mode="nearest")
+    else:
+        out = np.full(rows.shape, np.nan)
+        out[enough] = correlate1d(filled, weights, axis=-1, mode="nearest")
+    if trip.gap_after.any():
         out[~valid | near_gap(trip, w // 2)] = np.nan
-        out[:, : w // 2] = np.nan  # the trip's ends have no full window
-        out[:, rows.shape[-1] - w // 2:] = np.nan
+    elif not complete.all():
+        out[~valid] = np.nan
+    out[:, : w // 2] = np.nan  # the trip's ends have no full window
+    out[:, rows.shape[-1] - w // 2:] = np.nan
     return out.reshape(np.shape(x))
 
 

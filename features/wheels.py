@@ -93,8 +93,9 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
         deviation = np.divide(speeds, median)  # |v / median − 1|, in place
     deviation -= 1.0
     sane = np.all(np.abs(deviation, out=deviation) < GLITCH_FRAC, axis=0)
-    kept = speeds[:, sane]
-    reference = kept.mean(axis=0) if against == "mean" else median[sane]
+    every = sane.all()
+    kept = speeds if every else speeds[:, sane]
+    reference = kept.mean(axis=0) if against == "mean" else median if every else median[sane]
     return kept.sum(axis=1) / reference.sum()
 
 
