@@ -40,7 +40,10 @@ def fresh_rate(t_s: np.ndarray, values: np.ndarray, moving: np.ndarray) -> tuple
     positive = steps[steps > 0]
     if positive.size == 0:
         return float("nan"), float("nan")
-    period = float(np.median(positive))
+    # np.median's value; one single-index partition is several times faster on tied steps
+    half = positive.size // 2
+    part = np.partition(positive, half)
+    period = float(part[half] if positive.size % 2 else 0.5 * (part[:half].max() + part[half]))
     both_moving = moving[1:] & moving[:-1]
     seconds = float(np.sum(np.where(steps > GAP_PERIODS * period, period, steps)[both_moving]))
     known = np.isfinite(values)
