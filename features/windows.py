@@ -28,7 +28,7 @@ from features.signals import (
     median,
     median_of_four,
     moving_mean,
-    moving_std,
+    moving_std_at,
     second_smallest_of_four,
     smooth_derivative,
     window_samples,
@@ -122,9 +122,8 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
         if trip.has(name):
             confirmations += 1
             x = trip.signals[name]
-            if still.any():  # no wheel at rest: no quiet trace to look for
-                with np.errstate(invalid="ignore"):
-                    still &= np.isfinite(x) & (moving_std(x, width) < limit)
+            with np.errstate(invalid="ignore"):
+                still &= np.isfinite(x) & (moving_std_at(x, still, width) < limit)
     if confirmations == 0:
         return np.zeros(trip.n, dtype=bool), "standstill_unconfirmed"
     if trip.has("brake"):
