@@ -16,9 +16,11 @@ Definitions (truth.csv: vehicle_id, fault, component, onset_date, lamp_date,
 optionally growth = gradual | sudden | intermittent): positives at the as-of
 date are sensor faults (component not a tyre) with onset ≤ as-of and no lamp
 yet; k = their number; the ranking excludes vehicles whose lamp is lit. Lead
-time = lamp date − the first day of the alert run still going on the last trip
-before the lamp (0 when none). Lead fraction = lead / (lamp − onset), capped
-at 1. False alarms = alert runs started on vehicles without any truth row, per
+time = lamp date − ``flagged_since`` of the alert run still going on the last
+trip before the lamp (0 when none): the run's first trip, or the change-point
+estimate of a CUSUM that raised it where that lies earlier. Lead fraction =
+lead / (lamp − onset), capped at 1. ``median_alarm_lead_fraction`` counts from
+the run's first alerting trip instead: when the manager was first told. False alarms = alert runs started on vehicles without any truth row, per
 30 healthy vehicle-days, in % of vehicles.
 
 Two kinds of fault are reported apart, for every method alike, because no
@@ -47,7 +49,7 @@ import pandas as pd
 
 from models.feature_set import evidence_key
 from models.runner import ScoredFleet, score_fleet
-from models.scorer import FleetScorer
+from models.scorer import FleetScorer, run_start
 from tracktrue.errors import UserError
 from tracktrue.store import Store
 
@@ -166,7 +168,8 @@ def _tracktrue_result(fleet: ScoredFleet) -> MethodResult:
                         "flagged": st["status"].eq("inspect").to_numpy(), "component": st["suspected_component"]})
     per = fleet.drift.attrs["per_trip"]
     # what sends a vehicle to the workshop: sensor alerts (tyre-only drift is a "watch")
-    return MethodResult(veh, per[["vehicle_id", "start_time", "sensor_alert"]].rename(columns={"sensor_alert": "alert"}))
+    trips = per[["vehicle_id", "start_time", "sensor_alert", "sensor_change_since"]]
+    return MethodResult(veh, trips.rename(columns={"sensor_alert": "alert", "sensor_change_since": "since"}))
 
 
 def _rolling_alert(trips: pd.DataFrame, hit: np.ndarray) -> pd.Series:
@@ -225,13 +228,13 @@ def _raw_forest_result(fleet: ScoredFleet) -> MethodResult:
 
 
 # --------------------------------------------------------------- metrics
-def _run_start_before(trips: pd.DataFrame, vehicle: str, before: pd.Timestamp) -> dt.date | None:
+def _run_start_before(trips: pd.DataFrame, vehicle: str, before: pd.Timestamp, use_since: bool = True) -> dt.date | None:
+    """Start of the alert run going on at the last trip before ``before``; with ``since``
+    in ``trips`` (and ``use_since``), the change-point estimate where it reaches back further."""
     g = trips[(trips["vehicle_id"] == vehicle) & (trips["start_time"] < before)].sort_values("start_time")
-    a = g["alert"].fillna(False).to_numpy(dtype=bool)
-    if not len(a) or not a[-1]:
-        return None
-    breaks = np.flatnonzero(~a)
-    return pd.Timestamp(g["start_time"].iloc[breaks[-1] + 1 if len(breaks) else 0]).date()
+    since = g["since"] if use_since and "since" in g.columns else None
+    start = run_start(g["start_time"], g["alert"].fillna(False).to_numpy(dtype=bool), since)
+    return start.date() if start is not None else None
 
 
 def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit: set[str],
@@ -265,13 +268,16 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
     sudden = set(t.loc[not_early, "vehicle_id"])
     found = (flagged_any | lamp_lit | set(t.loc[lit, "vehicle_id"])) & sudden
-    leads, fracs = [], []
+    leads, fracs, alarm_fracs = [], [], []
     for r in t[lit & ~is_tyre & ~not_early].itertuples():
-        start = None if lead_zero else _run_start_before(result.trips, r.vehicle_id, pd.Timestamp(r.lamp_date, tz="UTC"))
-        lead = max(0, (r.lamp_date - start).days) if start else 0
+        lamp = pd.Timestamp(r.lamp_date, tz="UTC")
         span = max(1, (r.lamp_date - r.onset_date).days)
-        leads.append(lead)
-        fracs.append(min(1.0, lead / span))
+        for use_since, out in ((True, fracs), (False, alarm_fracs)):
+            start = None if lead_zero else _run_start_before(result.trips, r.vehicle_id, lamp, use_since)
+            lead = max(0, (r.lamp_date - start).days) if start else 0
+            out.append(min(1.0, lead / span))
+            if use_since:
+                leads.append(lead)
     healthy = set(result.trips["vehicle_id"]) - set(truth["vehicle_id"])
     ht = result.trips[result.trips["vehicle_id"].isin(healthy)].sort_values(["vehicle_id", "start_time"])
     a = ht["alert"].fillna(False).astype(bool)
@@ -284,6 +290,7 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
         "recall": float(recall),
         "median_lead_days": float(np.median(leads)) if leads else np.nan,
         "median_lead_fraction": float(np.median(fracs)) if fracs else np.nan,
+        "median_alarm_lead_fraction": float(np.median(alarm_fracs)) if alarm_fracs else np.nan,
         "false_alarms_pct_per_30d": 100.0 * starts / (vdays / 30.0) if vdays else np.nan,
         "healthy_vehicle_days_per_false_alarm": vdays / starts if starts else np.inf,
         "attribution_accuracy": float(attribution),
@@ -392,10 +399,16 @@ def _restrict(result: MethodResult, vehicles: set[str], keep: bool = True) -> Me
     return MethodResult(result.vehicles[v], result.trips[t])
 
 
+def _flag_runs(fleet: ScoredFleet) -> pd.DataFrame:
+    """Per trip: any alert and the change-point estimate behind it (what flagged_since shows)."""
+    per = fleet.drift.attrs["per_trip"]
+    return per[["vehicle_id", "start_time", "alert", "change_since"]].rename(columns={"change_since": "since"})
+
+
 def _backtest(fleet: ScoredFleet) -> pd.DataFrame:
     """First lamp event per vehicle: how many days earlier tracktrue's alert run began."""
     lamps = fleet.lamps.sort_values(["vehicle_id", "start_time"])
-    trips = fleet.drift.attrs["per_trip"]
+    trips = _flag_runs(fleet)
     rows = []
     for vid, g in lamps.groupby("vehicle_id"):
         ev = g[g["lamp_event"]]
@@ -415,7 +428,7 @@ def _backtest(fleet: ScoredFleet) -> pd.DataFrame:
 
 def _inspections(fleet: ScoredFleet, outcomes: pd.DataFrame) -> pd.DataFrame:
     """Each recorded inspection beside the alert run (if any) that began before it."""
-    trips = fleet.drift.attrs["per_trip"]
+    trips = _flag_runs(fleet)
     suspected = fleet.status.set_index("vehicle_id")["suspected_component"]
     rows = []
     for rec in outcomes.itertuples(index=False):  # one row per inspection, not per sample

@@ -246,7 +246,7 @@ class FleetScorer:
         the vehicle's own baseline removes its offset, and the scale must be shared
         for the pooled within-vehicle spread to mean the same for every vehicle)."""
         return self._key_means(normalise(df, self.peer_stats_, self.features_, leave_one_out=False),
-                               clip=self.drift_clip)
+                               clip=self.forest_clip)
 
     def _baselines(self, df: pd.DataFrame, stats: pd.DataFrame):
         """Each trip's own-vehicle baseline per statistic: a lagged expanding median.
@@ -342,6 +342,18 @@ class FleetScorer:
         sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
         wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
         wide["epoch_key"] = vehicle_key
+        # Page's change-point estimate: an alarming CUSUM's excursion began on the trip after
+        # it was last zero; flagged_since reaches back to it (see _run_start)
+        start = np.zeros(hi.shape, dtype=np.int64)
+        for family in FAMILIES:
+            idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
+            if idx:
+                s_hi, s_lo = _excursion_start(hi[:, idx], keys[family]), _excursion_start(lo[:, idx], keys[family])
+                start[:, idx] = np.where(hi[:, idx] >= lo[:, idx], s_hi, s_lo)
+        begun = np.where(alarm, start, len(df))
+        times = np.append(pd.to_datetime(df["start_time"], utc=True).to_numpy(), np.datetime64("NaT"))
+        wide["change_since"] = times[begun.min(axis=1, initial=len(df))]
+        wide["sensor_change_since"] = times[np.where(sensor_stats[None, :], begun, len(df)).min(axis=1, initial=len(df))]
         for component, hit in confirmed.items():
             wide[f"confirmed__{component}"] = hit
         for j, s in enumerate(self.statistics_):
@@ -414,7 +426,8 @@ class FleetScorer:
              vehicles: pd.DataFrame | None = None, as_of=None) -> pd.DataFrame:
         """VEHICLE_STATUS_COLUMNS (plus helper columns), ordered by status then score."""
         per_trip = drift_long.attrs["per_trip"]
-        ts = trip_scores.merge(per_trip[["trip_id", "alert", "sensor_alert", "epoch_key"]], on="trip_id", how="left")
+        ts = trip_scores.merge(per_trip[["trip_id", "alert", "sensor_alert", "epoch_key", "change_since",
+                                         "sensor_change_since"]], on="trip_id", how="left")
         ts = ts.sort_values(["vehicle_id", "start_time"])
         current = ts.groupby("vehicle_id")["epoch_key"].transform("last")
         cur = ts[ts["epoch_key"] == current]
@@ -429,7 +442,8 @@ class FleetScorer:
         n_recent = recent.groupby("vehicle_id").size()
         n_measured = recent[zc].notna().any(axis=1).groupby(recent["vehicle_id"]).sum()
         last = cur.groupby("vehicle_id").tail(1).set_index("vehicle_id")
-        since_any, since_sensor = _run_start(cur, "alert"), _run_start(cur, "sensor_alert")
+        since_any = _run_start(cur, "alert", "change_since")
+        since_sensor = _run_start(cur, "sensor_alert", "sensor_change_since")
         lamp_last = _lamp_state(lamps, ts)
         strength = per_trip.sort_values("start_time").groupby("vehicle_id").tail(1).set_index("vehicle_id")
         rows = []
@@ -639,14 +653,42 @@ def _lamp_state(lamps: pd.DataFrame, ts: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def _run_start(ts: pd.DataFrame, column: str) -> dict:
-    """Date of the first trip of each vehicle's current run of alerting trips."""
+def _excursion_start(c: np.ndarray, key: np.ndarray) -> np.ndarray:
+    """Row of the first trip of each CUSUM's current excursion above zero (per series):
+    the trip after the last one where the sum was 0, or the series' first trip. This is
+    the CUSUM's own estimate of when the shift began (Page 1954; Montgomery, *Introduction
+    to Statistical Quality Control*, tabular CUSUM, from memory)."""
+    codes = pd.factorize(np.asarray(key))[0]
+    rows = np.arange(len(c))
+    first = rows - pd.Series(codes).groupby(codes).cumcount().to_numpy()
+    zero = np.where(c <= 0.0, rows[:, None], -1)
+    last_zero = pd.DataFrame(zero).groupby(codes).cummax().to_numpy()
+    return np.where(last_zero < 0, first[:, None], last_zero + 1)
+
+
+def run_start(times: pd.Series, alert: np.ndarray, since: pd.Series | None = None) -> pd.Timestamp | None:
+    """Start of the run of alerting trips that includes the last trip (None when it does not
+    alert): its first trip, or earlier where a CUSUM in the run estimates its change began
+    earlier (``since``, NaT where none)."""
+    a = np.asarray(alert, dtype=bool)
+    if not len(a) or not a[-1]:
+        return None
+    breaks = np.flatnonzero(~a)
+    first = breaks[-1] + 1 if len(breaks) else 0
+    start = pd.Timestamp(times.iloc[first])
+    if since is not None:
+        earliest = pd.to_datetime(since.iloc[first:], utc=True).min()
+        if pd.notna(earliest) and earliest < start:
+            start = earliest
+    return start
+
+
+def _run_start(ts: pd.DataFrame, column: str, since_column: str | None = None) -> dict:
+    """Date of the start of each vehicle's current run of alerting trips (see run_start)."""
     out = {}
     for vid, g in ts.groupby("vehicle_id", sort=False):
-        a = g[column].fillna(False).to_numpy(dtype=bool)
-        if not a[-1]:
-            continue
-        breaks = np.flatnonzero(~a)
-        first = breaks[-1] + 1 if len(breaks) else 0
-        out[vid] = pd.Timestamp(g["start_time"].iloc[first]).date()
+        start = run_start(g["start_time"], g[column].fillna(False).to_numpy(dtype=bool),
+                          g[since_column] if since_column else None)
+        if start is not None:
+            out[vid] = start.date()
     return out

@@ -43,3 +43,35 @@ def test_missing_trip_leaves_both_sums_unchanged():
     hi, lo = tabular_cusum(u, k=0.5)
     np.testing.assert_allclose(hi[0], [1.5, 1.5, 3.0, 0.0])
     np.testing.assert_allclose(lo[0], [0.0, 0.0, 0.0, 2.5])
+
+
+def test_change_point_estimate_is_the_trip_after_the_cusum_was_last_zero():
+    # Page (1954) / Montgomery's tabular CUSUM (from memory): when C⁺ signals, the shift is
+    # estimated to have begun just after the last period with C⁺ = 0. Two series (vehicles):
+    # the first shifts by 1.5σ at trip 20 of 40, the second never does.
+    from models.scorer import _excursion_start
+
+    rng = np.random.default_rng(4)
+    u = rng.normal(0.0, 0.3, (2, 40))
+    u[0, 20:] += 1.5
+    hi, _ = tabular_cusum(u, k=0.5)
+    hi = hi.reshape(-1, 1)  # one statistic, the two series stacked as trips
+    key = np.repeat(["A", "B"], 40)
+    start = _excursion_start(hi, key)[:, 0]
+    alarm = int(np.flatnonzero(hi[:40, 0] > 4.0)[0])
+    assert alarm > 20 and abs(int(start[alarm]) - 20) <= 1
+    assert (start[40:] >= 40).all()  # the second series never reaches back into the first
+
+
+def test_flagged_since_reaches_back_to_the_change_point_but_never_after_the_first_alert():
+    import pandas as pd
+
+    from models.scorer import run_start
+
+    times = pd.Series(pd.date_range("2026-03-02", periods=6, freq="D", tz="UTC"))
+    alert = np.array([False, False, False, True, True, True])
+    since = pd.Series([pd.NaT, pd.NaT, pd.NaT, times[1], times[1], pd.NaT])
+    assert run_start(times, alert, since) == times[1]
+    later = pd.Series([pd.NaT] * 3 + [times[5]] * 3)
+    assert run_start(times, alert, later) == times[3]
+    assert run_start(times, np.array([True] * 5 + [False]), since) is None
