@@ -80,7 +80,9 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
         return {c: out.get(c, np.nan) for c in ROW_COLUMNS}
     trip = trip_arrays(columns)
     windows = find_windows(trip, vehicle)
-    distance_km = trip_distance_km(trip, windows.speed)
+    # a speed-only (telematics) log has no wheel speeds: its distance comes from the vehicle speed
+    speed = windows.speed if np.isfinite(windows.speed).any() else trip.signals["vehicle_speed"]
+    distance_km = trip_distance_km(trip, speed)
     ref = calibrate(trip, vehicle, windows)
 
     wheel_ratio_features(row, trip, vehicle, windows, ref)
