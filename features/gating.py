@@ -144,15 +144,19 @@ class Gate:
         return None
 
 
-def signal_figures(trip: TripArrays) -> dict[str, Figures]:
-    """Figures of every numeric signal the trip logs, over its moving samples (module docstring)."""
-    moving = _moving_speed(trip) >= MOVING_MPS
+def signal_figures(trip: TripArrays, moving: np.ndarray) -> dict[str, Figures]:
+    """Figures of every numeric signal the trip logs, over its ``moving`` samples (all if none moves).
+
+    The moving time is Σ dt of the moving samples (TripArrays.dt caps a gap at one
+    median step, as tracktrue.signal_quality.moving_seconds does).
+    """
     if not moving.any():
         moving = np.ones(trip.n, bool)
+    seconds = float(trip.dt[moving].sum())
     out = {}
     for name in trip.resolution:
         if trip.has(name):
-            rate, stale = fresh_rate(trip.t, trip.signal(name), moving)
+            rate, stale = fresh_rate(trip.signal(name), moving, seconds)
             out[name] = Figures(trip.resolution[name], rate, stale)
     return out
 
@@ -162,11 +166,19 @@ def logger_kind(figures: dict[str, Figures]) -> str:
     wheels = [figures[c] for c in WHEEL_SPEED_COLUMNS if c in figures]
     if not wheels:
         return "telematics"
-    rate = np.nanmedian([w.row_hz for w in wheels]) if any(math.isfinite(w.row_hz) for w in wheels) else math.nan
-    step = np.nanmedian([w.step for w in wheels]) if any(math.isfinite(w.step) for w in wheels) else math.nan
+    rate = _median_known([w.row_hz for w in wheels])
+    step = _median_known([w.step for w in wheels])
     if rate < POLLED_BELOW_HZ or step > POLLED_STEP_ABOVE_MPS:
         return "polled"
     return "bus_capture"
+
+
+def _median_known(values: list[float]) -> float:
+    known = sorted(v for v in values if math.isfinite(v))
+    if not known:
+        return math.nan
+    mid = len(known) // 2
+    return known[mid] if len(known) % 2 else 0.5 * (known[mid - 1] + known[mid])
 
 
 def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
@@ -236,9 +248,9 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
 
 def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[str, object]:
     """Apply every feature's gates to ``row`` (module docstring); returns the GATING_COLUMNS."""
-    figures = signal_figures(trip)
     speed = _moving_speed(trip)
     moving = speed >= MOVING_MPS
+    figures = signal_figures(trip, moving)
     moving_s = float(trip.dt[moving].sum())
     gates = feature_gates(spec, float(np.median(speed[moving])) if moving.any() else FALLBACK_SPEED_MPS)
     for name, checks in gates.items():

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from tracktrue.schema import NUMERIC_SIGNALS, WHEEL_SPEED_COLUMNS
-from tracktrue.signal_quality import MOVING_MPS, fresh_rate
+from tracktrue.signal_quality import MOVING_MPS, fresh_rate, moving_seconds
 
 
 def trip_bounds(codes: np.ndarray, us: np.ndarray, gap_s: float) -> list[tuple[int, int]]:
@@ -87,11 +87,12 @@ def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str
             moving = mean_known(speeds) >= MOVING_MPS
     else:
         moving = np.ones(t.size, bool)
+    seconds = moving_seconds(t, moving)
     rows = []
     for sig in NUMERIC_SIGNALS:
         v = values.get(sig)
         present = v is not None and bool(np.isfinite(v).any())
-        rate, stale = fresh_rate(t, v, moving) if present else (float("nan"), float("nan"))
+        rate, stale = fresh_rate(v, moving, seconds) if present else (float("nan"), float("nan"))
         lag = lags.get(sig)
         known_lag = lag[np.isfinite(lag)] if lag is not None else np.array([])
         rows.append({"signal": sig, "present": present, "rate_hz": rate,

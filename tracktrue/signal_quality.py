@@ -28,32 +28,36 @@ MOVING_MPS = 3.0
 GAP_PERIODS = 2.5
 
 
-def fresh_rate(t_s: np.ndarray, values: np.ndarray, moving: np.ndarray) -> tuple[float, float]:
-    """(rate_hz, stale_frac) of one signal over one trip (module docstring); NaN where nothing moves.
-
-    ``t_s`` seconds (sorted), ``values`` the signal (NaN = missing cell),
-    ``moving`` a boolean mask of the rows where the vehicle moves.
-    """
+def moving_seconds(t_s: np.ndarray, moving: np.ndarray) -> float:
+    """Seconds between consecutive rows that both move, a logging gap counted as one median step."""
     if t_s.size < 2:
-        return float("nan"), float("nan")
+        return 0.0
     steps = np.diff(t_s)
     positive = steps[steps > 0]
     if positive.size == 0:
-        return float("nan"), float("nan")
-    # np.median's value; one single-index partition is several times faster on tied steps
-    half = positive.size // 2
-    part = np.partition(positive, half)
-    period = float(part[half] if positive.size % 2 else 0.5 * (part[:half].max() + part[half]))
-    both_moving = moving[1:] & moving[:-1]
-    seconds = float(np.sum(np.where(steps > GAP_PERIODS * period, period, steps)[both_moving]))
+        return 0.0
+    period = float(np.median(positive))
+    both = moving[1:] & moving[:-1]
+    steps = steps[both]
+    return float(np.sum(np.where(steps > GAP_PERIODS * period, period, steps)))
+
+
+def fresh_rate(values: np.ndarray, moving: np.ndarray, seconds: float) -> tuple[float, float]:
+    """(rate_hz, stale_frac) of one signal over one trip (module docstring); NaN where nothing moves.
+
+    ``values`` the signal (NaN = missing cell), ``moving`` a boolean mask of
+    the rows where the vehicle moves, ``seconds`` their moving_seconds.
+    """
     known = np.isfinite(values)
-    idx = np.flatnonzero(known)
-    if seconds <= 0 or idx.size < 2:
+    if known.all():  # the common case: no index arrays
+        x, counted = values, moving[1:]
+    else:
+        idx = np.flatnonzero(known)
+        x, counted = values[idx], moving[idx[1:]]  # each known value against the previous known one
+    if seconds <= 0 or x.size < 2:
         return float("nan"), float("nan")
-    x = values[idx]
-    counted = moving[idx[1:]]  # each known value compared with the previous known one
     if not counted.any():
         return float("nan"), float("nan")
     repeat = (x[1:] == x[:-1])[counted]
-    fresh = int(np.count_nonzero(~repeat))
+    fresh = int(repeat.size - np.count_nonzero(repeat))
     return fresh / seconds, float(repeat.mean())
