@@ -26,6 +26,12 @@ Unrecognised columns, a second column for a signal already read, and a VIN
 that fails its check digit are warnings in the summary; they do not change
 the exit code.
 
+A column headed ``<signal header> @ms`` holds each cell's read lag behind
+the row's time (polled loggers read the cells of a row one after another);
+ingest moves those values to their read times (ingest/skew.py). Logs with a
+vehicle speed but no wheel speed (telematics) are ingested; their missing
+signals are null sample columns.
+
 Vehicle identity, time bases, the profile format and the store layout are
 documented in ingest/identity.py, ingest/timebase.py, ingest/profile.py and
 ingest/samples.py / ingest/catalog.py.
