@@ -108,8 +108,8 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
 
 def _quality(trip: TripArrays, windows, distance_km: float) -> dict[str, object]:
     """Quality columns: how much to trust the row (DESIGN.md feature table, last line)."""
-    present = [trip.signal(s) for s in CORE_SIGNALS if trip.has(s)]
-    missing = float(np.mean([np.isnan(x).mean() for x in present])) if present else 1.0
+    present = [trip.missing[s] for s in CORE_SIGNALS if trip.has(s)]
+    missing = float(np.mean(present)) if present else 1.0
     out: dict[str, object] = {
         "duration_s": float(trip.t[-1] - trip.t[0]),
         "distance_km": distance_km,

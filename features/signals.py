@@ -41,6 +41,7 @@ class TripArrays:
     gap_after: np.ndarray  #: True where the step to the next sample is a gap
     resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
     logged: frozenset[str] = frozenset()  #: signals with at least one sample present
+    missing: Mapping[str, float] = field(default_factory=dict)  #: share of missing samples per signal (and brake)
     _smoothed: dict = field(default_factory=dict, repr=False, compare=False)
 
     def smoothed(self, name: str) -> np.ndarray:
@@ -73,8 +74,8 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
     """Convert one trip's canonical samples (a DataFrame or features.columns arrays) to arrays."""
     columns = sample_columns(samples)
     t_ns = columns["time"]
-    order = np.argsort(t_ns, kind="stable")
-    sorted_ = bool(np.all(order == np.arange(order.size)))
+    sorted_ = bool(np.all(t_ns[1:] >= t_ns[:-1]))  # a stable sort of sorted stamps changes nothing
+    order = np.arange(t_ns.size) if sorted_ else np.argsort(t_ns, kind="stable")
     t = (t_ns - t_ns[order[0]]).astype(np.float64) / 1e9 if t_ns.size else np.zeros(0)
     if not sorted_:
         t = t[order]
@@ -100,10 +101,14 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
     others = {c: column(c) for c in NUMERIC_SIGNALS if c not in WHEEL_SPEED_COLUMNS}
     brake = column("brake")
     every = {**dict(zip(WHEEL_SPEED_COLUMNS, wheels)), **others, "brake": brake}
-    logged = frozenset(name for name, x in every.items() if np.isfinite(x).any())
-    resolution = {c: smallest_step(every[c]) for c in NUMERIC_SIGNALS}
+    finite = {name: np.isfinite(x) for name, x in every.items()}
+    present = {name: int(np.count_nonzero(ok)) for name, ok in finite.items()}
+    logged = frozenset(name for name, k in present.items() if k)
+    missing = {name: 1.0 - k / t.size if t.size else 1.0 for name, k in present.items()}
+    resolution = {c: smallest_step(every[c] if present[c] == t.size else every[c][finite[c]])
+                  for c in NUMERIC_SIGNALS}
     return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
-                      gap_after=gap_after, resolution=resolution, logged=logged)
+                      gap_after=gap_after, resolution=resolution, logged=logged, missing=missing)
 
 
 def smallest_step(values: np.ndarray) -> float:
@@ -300,7 +305,7 @@ def median_of_three(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 def seconds(mask: np.ndarray, trip: TripArrays) -> float:
     """Time covered by the samples in ``mask``, in s."""
-    return float(trip.dt[mask].sum())
+    return float(np.sum(trip.dt, where=mask))
 
 
 def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: float = 0.0) -> np.ndarray:
