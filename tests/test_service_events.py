@@ -28,14 +28,19 @@ VAN-02,van,3.4,1.7,1.7,17,0.34
 TODAY = dt.date(2026, 6, 1)
 
 
-@pytest.fixture
-def store(tmp_path) -> Store:
-    """A store that knows two vehicles (registry only, no logs)."""
-    (tmp_path / "vehicles.csv").write_text(REGISTRY)
+def registry_only_store(tmp_path: Path, registry: str = REGISTRY) -> Store:
+    """A store that knows the registry's vehicles and has no logs (``tmp_path/no-logs`` is empty)."""
+    (tmp_path / "vehicles.csv").write_text(registry)
     (tmp_path / "no-logs").mkdir()
     store = Store.open(tmp_path / "store")
     run_ingest([tmp_path / "no-logs"], store, vehicles_csv=tmp_path / "vehicles.csv")
     return store
+
+
+@pytest.fixture
+def store(tmp_path) -> Store:
+    """A store that knows two vehicles (registry only, no logs)."""
+    return registry_only_store(tmp_path)
 
 
 def write(path: Path, text: str) -> Path:

@@ -100,4 +100,4 @@ if ranking is not None:
     else:
         st.caption("Tick one vehicle to snooze it.")
 
-    changes_section(store)
+changes_section(store)
