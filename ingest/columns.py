@@ -10,8 +10,8 @@ another, so a cell may hold a value read some time before the row's time
 stamp. A column whose header is a signal column's header (as written, or its
 name without the bracketed unit) followed by ``@ms``, e.g. ``Wheel speed FL
 [km/h]`` with ``Wheel speed FL @ms``, holds that lag in integer milliseconds
-for each cell; ingest/skew.py moves each value to its own read time. A
-companion of a column that is not used is a warning.
+for each cell; ingest/skew.py moves each numeric value to its own read time.
+A companion of a column that is not used is a warning.
 """
 
 from __future__ import annotations
@@ -101,18 +101,21 @@ LAG_SUFFIX = "@ms"
 
 
 def _lag_columns(companions: list[tuple[int, str]], columns: dict[str, Column], ignored: list[str]) -> dict[str, int]:
-    """signal -> companion column index; a companion of no used numeric column goes to ``ignored``."""
+    """Numeric signal -> its companion's column index.
+
+    A companion of a switch or text column (brake, lamps, trouble codes) is
+    recognised and not applied: a lamp read a few hundred ms late changes no
+    per-trip lamp figure. A companion of no column read goes to ``ignored``.
+    """
     by_name: dict[str, str] = {}
     for signal, col in columns.items():
-        if col.factor is not None or col.rule is not None and col.rule.v_per_g is not None:
-            by_name[col.header.strip().lower()] = signal
-            by_name.setdefault(grammar.split_unit(col.header)[0].strip().lower(), signal)
+        by_name[col.header.strip().lower()] = signal
+        by_name.setdefault(grammar.split_unit(col.header)[0].strip().lower(), signal)
     lags: dict[str, int] = {}
     for index, text in companions:
-        base = text.strip()[: -len(LAG_SUFFIX)].strip().lower()
-        signal = by_name.get(base)
+        signal = by_name.get(text.strip()[: -len(LAG_SUFFIX)].strip().lower())
         if signal is None or signal in lags:
-            ignored.append(f"{text} (a read-lag column of no numeric signal column read)")
-            continue
-        lags[signal] = index
+            ignored.append(f"{text} (a read-lag column of no column read)")
+        elif grammar.QUANTITY[signal] in grammar.NUMERIC_QUANTITIES:
+            lags[signal] = index
     return lags

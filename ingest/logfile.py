@@ -188,9 +188,6 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     logged = {s: v[kept] for s, v in values.items()}  # as logged, in (vehicle, time) order
     stored = _aligned(logged, {s: lag[kept] for s, lag in lags.items()}, us, bounds)
     result.warnings.extend(sign_warnings(stored, us / 1e6))
-    if lags:
-        result.warnings.append("values moved to their read times by the read-lag columns of "
-                               + ", ".join(sorted(lags)))
     table = _sample_table(ident, np.repeat(np.arange(len(bounds)), lengths), ids, us,
                           stored, {s: (on[kept], m[kept]) for s, (on, m) in switches.items()},
                           dtc.take(pa.array(kept)) if dtc is not None else None, codes)

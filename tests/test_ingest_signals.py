@@ -98,15 +98,17 @@ def test_aligned_values_keep_the_logged_step():
     assert np.all(steps == np.round(steps))
 
 
-def test_bad_read_lag_cells_reject_their_rows_and_a_lag_column_of_no_signal_is_a_warning():
+def test_bad_read_lag_cells_reject_their_rows_a_switch_lag_is_accepted_a_lag_of_no_column_is_a_warning():
     t = np.arange(0, 5, 0.5)
     lag = np.full(t.size, 100.0)
     lag[3], lag[6] = -5.0, 120_000.0
-    r = read_log(_csv({"FL [km/h]": np.full(t.size, 30.0), "FL @ms": lag, "Oil temp @ms": lag}, t), "b.csv",
-                 "V", Profile(), 300)
+    r = read_log(_csv({"FL [km/h]": np.full(t.size, 30.0), "FL @ms": lag, "Oil temp @ms": lag,
+                       "Brake switch": np.zeros(t.size, int), "Brake switch @ms": np.full(t.size, 50)}, t),
+                 "b.csv", "V", Profile(), 300)
     reasons = dict(r.rejects)
     assert len(reasons) == 2 and all("read lag" in why for why in reasons.values())
-    assert any("Oil temp @ms" in w for w in r.warnings)
+    assert [w for w in r.warnings if "@ms" in w] == ["columns not used: 'Oil temp @ms (a read-lag column of no column "
+                                                     "read)'"]
 
 
 def test_a_speed_only_telematics_log_is_ingested_with_null_wheel_columns(tmp_path):
