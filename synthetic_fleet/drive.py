@@ -78,6 +78,12 @@ class DriveTrace:
     def trips(self) -> Segments:
         return self.segments if self.segments is not None else Segments.of([len(self.t_s)])
 
+    @property
+    def rate_hz(self) -> float:
+        """The grid's rate (each trip's time starts at 0 in steps of 1/rate)."""
+        steps = self.t_s[1:][self.trips.local[1:] == 1]
+        return float(1.0 / steps[0]) if len(steps) else 1.0
+
 
 @functools.lru_cache(maxsize=None)
 def _fields(style: RoadStyle) -> dict[str, np.ndarray]:

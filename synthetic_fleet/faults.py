@@ -29,13 +29,16 @@ def _expand(kinds: tuple[str, ...]) -> tuple[str, ...]:
 FAULTS: tuple[str, ...] = _expand(SENSOR_FAULT_KINDS + TYRE_DISTRACTOR_KINDS)
 #: Healthy confounders trip_samples accepts (never faults, never a lamp).
 CONFOUNDERS: tuple[str, ...] = (
-    "rough_road", "tyre_change", *(f"spare_{p}" for p in POSITIONS), "full_load", "temperature", "slope_parking")
+    "rough_road", "tyre_change", *(f"spare_{p}" for p in POSITIONS), "full_load", "towing", "temperature",
+    "slope_parking")
 
 #: The size of each fault at severity 1 (units in the key).
 MAGNITUDE_AT_SEVERITY_1: dict[str, float] = {
-    "tone_ring_error_frac": 0.012,  # once-per-revolution amplitude, fraction of wheel speed
-    "tone_ring_step_frac": 0.035,  # std of erratic steps, fraction of wheel speed
-    "tone_ring_step_prob": 0.03,  # share of samples with an erratic step
+    # a bent ring: edge error amplitude once per turn (fraction of a pitch); over N teeth it changes the
+    # timed angle by about 2π/N of it, about 1.2 % of wheel speed at 48 teeth
+    "tone_ring_bend_pitch": 0.09,
+    "tone_ring_edge_error_pitch": 0.12,  # edge displacement of the worst damaged tooth, fraction of a pitch
+    "tone_ring_missing_severity": 1.5,  # from this severity on, the damaged tooth is broken off (no edge)
     "air_gap_dropout_speed_mps": 4.5,  # rise of the speed below which the signal drops out
     "yaw_offset_dps": 1.5,
     "yaw_gain_frac": 0.07,

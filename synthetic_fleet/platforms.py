@@ -32,6 +32,8 @@ class Platform:
     #: Relative change of the understeer gradient from empty to full load
     #: (rear-heavy payload makes a van understeer less).
     load_understeer_change: float
+    #: Teeth of the wheels' tone rings (the module counts them; 40-100 is usual — common practice).
+    tone_ring_teeth: int = 48
 
     def registry_row(self) -> dict[str, float | str]:
         """The vehicles.csv spec columns of a vehicle of this platform."""
@@ -45,11 +47,11 @@ PLATFORM_SPECS: dict[str, Platform] = {
     p.name: p
     for p in (
         Platform("compact_van", 2.755, 1.520, 1.535, 16.2, 0.3150, 2.6, "front", "active",
-                 0.004, 0.021, -0.15),
+                 0.004, 0.021, -0.15, 48),
         Platform("lwb_van", 3.665, 1.730, 1.700, 18.6, 0.3480, 3.9, "rear", "passive",
-                 0.009, 0.026, -0.30),
+                 0.009, 0.026, -0.30, 44),
         Platform("pickup", 3.095, 1.605, 1.595, 17.4, 0.3870, 3.1, "rear", "passive",
-                 0.007, 0.024, -0.25),
+                 0.007, 0.024, -0.25, 46),
     )
 }
 

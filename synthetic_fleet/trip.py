@@ -12,6 +12,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pandas as pd
 
+from synthetic_fleet.config import WheelModule
 from synthetic_fleet.drive import drive_traces
 from synthetic_fleet.faults import LAMP_SEVERITY, check_confounders, parse_fault
 from synthetic_fleet.logger import LOGGER_KINDS, LOGGERS, LoggerProfile, apply_logger_trips, grid_rate_hz, logger_rate_hz
@@ -94,26 +95,36 @@ class SimulatedTrips:
 
 def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCondition], *, vehicle_id: str,
                    starts: Sequence[pd.Timestamp], drives: Sequence[str], durations_s: Sequence[float],
-                   fleet_rate_hz: float, logger: LoggerProfile,
-                   rngs: Sequence[np.random.Generator]) -> SimulatedTrips:
+                   fleet_rate_hz: float, logger: LoggerProfile, rngs: Sequence[np.random.Generator],
+                   module: WheelModule = WheelModule()) -> SimulatedTrips:
     """Drive, measure, emulate the on-board monitor's lamp and trouble code, and log several trips of one
-    vehicle in one pass; each trip draws on its own random stream ``rngs[k]`` only."""
+    vehicle in one pass; each trip draws on its own random stream ``rngs[k]`` only.
+
+    The ESC lamp also lights without a fault: for the seconds of a stability
+    intervention and, after the driver switches ESC off, to the trip's end;
+    neither stores a trouble code."""
     rate = grid_rate_hz(logger, fleet_rate_hz)
     streams = [rng.spawn(3) for rng in rngs]  # drive, sensors, logger: a fault changes nothing but its own signals
     drive_rngs, sensor_rngs, logger_rngs = ([s[i] for s in streams] for i in range(3))
     trace = drive_traces(list(drives), list(durations_s), rate, drive_rngs, [c.park_grade_start for c in conds],
                          [c.park_grade_end for c in conds])
     trips = trace.trips
-    signals = measure_trips(trace, spec, health, list(conds), sensor_rngs)
+    signals = measure_trips(trace, spec, health, list(conds), sensor_rngs, module)
     faults = [parse_fault(c.fault) if c.fault else None for c in conds]
     lit = [f.lamps if f else (False, False) for f in faults]
     lamp = trace.t_s >= trips.spread([np.inf if c.lamp_from_s is None else c.lamp_from_s for c in conds])
     signals["lamp_abs"] = lamp & trips.spread([abs_lit for abs_lit, _ in lit])
     signals["lamp_esc"] = lamp & trips.spread([esc_lit for _, esc_lit in lit])
     dtc = np.full(trips.total, None, dtype=object)
-    for fault, (abs_lit, esc_lit), a, b in zip(faults, lit, trips.starts, trips.ends):
+    for cond, fault, (abs_lit, esc_lit), a, b in zip(conds, faults, lit, trips.starts, trips.ends):
         if fault is not None and (abs_lit or esc_lit):
             dtc[a:b][lamp[a:b]] = fault.trouble_code
+        t = trace.t_s[a:b]
+        esc = signals["lamp_esc"][a:b]
+        for lo, hi in cond.esc_flashes:
+            esc |= (t >= lo) & (t < hi)
+        if cond.esc_off_from_s is not None:
+            esc |= t >= cond.esc_off_from_s
     signals["dtc"] = dtc
     row_rate = logger_rate_hz(logger, fleet_rate_hz)
     time_ms, logged, lengths, lags = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs, row_rate)
@@ -122,10 +133,11 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
 
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
                   start: pd.Timestamp, drive: str, duration_s: float, fleet_rate_hz: float,
-                  logger: LoggerProfile, rng: np.random.Generator) -> SimulatedTrip:
+                  logger: LoggerProfile, rng: np.random.Generator, module: WheelModule = WheelModule()) -> SimulatedTrip:
     """One trip (simulate_trips of one trip)."""
     return simulate_trips(spec, health, [cond], vehicle_id=vehicle_id, starts=[start], drives=[drive],
-                          durations_s=[duration_s], fleet_rate_hz=fleet_rate_hz, logger=logger, rngs=[rng]).trip(0)
+                          durations_s=[duration_s], fleet_rate_hz=fleet_rate_hz, logger=logger, rngs=[rng],
+                          module=module).trip(0)
 
 
 def confounded_condition(base: TripCondition, confounders: Sequence[str], rng: np.random.Generator) -> TripCondition:
@@ -142,6 +154,8 @@ def confounded_condition(base: TripCondition, confounders: Sequence[str], rng: n
             tyre[POSITIONS.index(name[-2:])] *= 1.0 + rng.uniform(*SPARE_RADIUS_FRAC)
         elif name == "full_load":
             changes["load"] = 1.0
+        elif name == "towing":
+            changes["towing"] = True
         elif name == "temperature":
             changes["ambient_c"] = float(rng.choice(EXTREME_AMBIENT_C))
         elif name == "slope_parking":

@@ -85,8 +85,15 @@ def test_lamps_light_only_after_onset_and_only_for_sensor_faults(seed):
             continue
         onset = START + dt.timedelta(days=int(v.fault.onset_day))
         if lamp is not None:
-            assert lamp > onset  # days or weeks after the onset, never at once
-            assert all(t.condition.severity >= LAMP_SEVERITY for t in lit_trips)
+            if v.fault.growth == "gradual":
+                assert lamp > onset  # days or weeks after the onset, never at once
+            assert lamp >= onset
+            for t in lit_trips:
+                if v.fault.growth == "intermittent":  # a stored code: lit from the dropout to the key-off
+                    assert t.condition.severity < LAMP_SEVERITY
+                    assert t.condition.lamp_from_s == t.condition.dropout_bursts[0][0] > 0
+                else:
+                    assert t.condition.severity >= LAMP_SEVERITY
             first = min(t.start for t in lit_trips)
             assert first.date() == lamp
 
@@ -109,8 +116,18 @@ def test_fleet_tables_follow_the_contracts(fleet):
     assert set(REGISTRY_OPTIONAL) <= set(vehicles.columns)
     assert all(vin_problem(v) is None for v in vehicles.vin)
     truth = pd.read_csv(out / "truth.csv", dtype=str, keep_default_na=False)
-    assert list(truth.columns) == ["vehicle_id", "fault", "component", "onset_date", "lamp_date"]
+    assert list(truth.columns) == ["vehicle_id", "fault", "component", "onset_date", "lamp_date", "growth"]
     assert set(truth.fault) <= set(FAULTS) and set(truth.component) <= set(COMPONENTS) - {"none"}
+    assert set(truth.growth) <= {"gradual", "sudden", "intermittent"}
+    loggers = pd.read_csv(out / "loggers.csv")
+    assert list(loggers.columns) == ["vehicle_id", "logger_kind", "wheel_sensor_type", "rate_hz",
+                                     "wheel_speed_step_kph"]
+    assert list(loggers.vehicle_id) == list(vehicles.vehicle_id)
+    assert set(loggers.logger_kind) <= {"polled", "bus_capture", "telematics"}
+    assert set(loggers.wheel_sensor_type) <= {"passive", "active"}
+    episodes = pd.read_csv(out / "lamp_episodes.csv")
+    assert list(episodes.columns) == ["vehicle_id", "trip_start", "kind", "from_s", "to_s"]
+    assert set(episodes.kind) <= {"intervention", "esc_off", "intermittent_code"}
     history = pd.read_csv(out / "service_history.csv")
     assert list(history.columns) == ["vehicle_id", "date", "kind", "component", "note"]
     files = sorted((out / "logs").rglob("*.csv"))
@@ -135,17 +152,28 @@ def test_lamp_and_trouble_code_appear_in_the_logs_only_from_the_lamp_date(fleet,
     truth = pd.read_csv(out / "truth.csv", dtype=str, keep_default_na=False)
     lit = truth[truth.lamp_date != ""]
     assert len(lit) >= 1, "the fixture fleet should have a lamp within its month"
+    episodes = pd.read_csv(out / "lamp_episodes.csv")
     for vid in pd.read_csv(out / "vehicles.csv").vehicle_id:
         row = truth[truth.vehicle_id == vid]
         lamp_date = row.lamp_date.iloc[0] if len(row) else ""
+        intermittent = len(row) and row.growth.iloc[0] == "intermittent"
         for f in sorted((out / "logs" / vid).glob("*.csv")):
             _, _, df = logs[f]
-            on = df.lamp_abs | df.lamp_esc
+            start = pd.Timestamp(f.stem.split("_")[1])
+            mine = episodes[(episodes.vehicle_id == vid) & (pd.to_datetime(episodes.trip_start) == start)]
+            coded = df.dtc.notna()
             day = df.time.iloc[0].date().isoformat()
-            if not lamp_date or day < lamp_date:
-                assert not on.any() and df.dtc.isna().all(), f.name
-            elif day > lamp_date:
-                assert on.all() and df.dtc.str.startswith("TT-").all(), f.name
+            if not lamp_date or day < lamp_date or (intermittent and "intermittent_code" not in set(mine.kind)):
+                assert not df.lamp_abs.any() and not coded.any(), f.name
+            elif day > lamp_date and not intermittent:
+                assert coded.all() and (df.lamp_abs | df.lamp_esc).all() and df.dtc.str.startswith("TT-").all(), f.name
+            # an ESC lamp without a code is an intervention or ESC switched off, never a fault
+            since_s = (df.time - start).dt.total_seconds().to_numpy()
+            quiet = mine[mine.kind != "intermittent_code"]
+            inside = np.zeros(len(df), dtype=bool)
+            for lo, hi in zip(quiet.from_s, quiet.to_s.fillna(np.inf)):  # empty: until the key is off
+                inside |= (since_s >= lo - 1.0) & (since_s <= hi + 1.0)
+            assert not (df.lamp_esc & ~coded & ~inside).any(), f.name
 
 
 def test_the_logged_fault_grows_after_onset_in_its_own_signal(fleet, logs):

@@ -176,7 +176,8 @@ _WHEELS = {*WHEEL_SPEED_COLUMNS, "vehicle_speed"}
 _CONFOUNDER_TOUCHES = {
     "rough_road": _WHEELS | {"yaw_rate", "accel_long", "accel_lat"},
     "tyre_change": _WHEELS, **{f"spare_{p}": {f"wheel_speed_{p}", "vehicle_speed"} for p in POSITIONS},
-    "full_load": {"steering_angle", "accel_long"},  # understeer changes the steering needed; the body pitches
+    # understeer changes the steering needed; the body pitches; loaded tyres roll on a smaller radius
+    "full_load": _WHEELS | {"steering_angle", "accel_long"}, "towing": _WHEELS | {"steering_angle", "accel_long"},
     "temperature": {"yaw_rate", "accel_long", "accel_lat"}, "slope_parking": {"accel_long"},
 }
 

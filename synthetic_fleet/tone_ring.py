@@ -1,0 +1,142 @@
+"""Wheel speed as an ABS module computes it: tooth edges of a tone ring, counted or timed.
+
+A tone ring of N teeth turns with the wheel; the sensor sees an edge each
+time a tooth passes, at the wheel angle m·2π/N (m = 0, 1, 2, …) plus that
+tooth's position error. Every ``tick_s`` the module takes the edges of the
+last ``window_s`` and publishes a speed, assuming every tooth is where it
+should be:
+
+- "count": v = n·(2π/N)·r / T for n edges in the window T — textbook
+  kinematics (arc length per tooth 2πr/N), so the published speed moves in
+  steps of Δv = 2πr/(N·T);
+- "period": v = (n−1)·(2π/N)·r / (t_last − t_first), the angle between the
+  first and last edge over the time between them (fine resolution); with
+  fewer than two edges in the window, the last two edges; with no edge for
+  ``timeout_s``, 0.
+
+A damaged tooth's edge comes early or late and a missing tooth gives no
+edge, so the speed jumps whenever such a tooth is at the window's end (or
+inside a counted window): false spikes on that wheel only, as often as the
+tooth passes a window's end — and a logger reading at a few Hz aliases them.
+
+The wheel angle is the running sum of the angular speed on the simulation
+grid (linear between grid points); edge times are found by interpolating
+time against angle. Each trip's angle starts at a whole number of turns
+plus its own phase, so which tooth passes when depends on the trip alone.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from synthetic_fleet.config import WheelModule
+from synthetic_fleet.segments import Segments
+
+
+def speed_quantum_mps(radius_m: float, n_teeth: int, window_s: float) -> float:
+    """Δv = 2πr/(N·T): one tooth more or less in a counted window of T seconds (textbook kinematics)."""
+    return 2.0 * np.pi * radius_m / (n_teeth * window_s)
+
+
+def wheel_angles(omega_rps: np.ndarray, trips: Segments, rate_hz: float, phase_rad: np.ndarray) -> np.ndarray:
+    """Wheel angle (rad) at each grid sample, non-decreasing over all segments: the angle turned before
+    the sample (speed held over each grid step) on top of a whole number of turns plus ``phase_rad``
+    (per segment)."""
+    turned = np.cumsum(omega_rps) / rate_hz
+    before = turned - omega_rps / rate_hz  # the angle turned before each sample, from the first segment's start
+    at_start = before[trips.starts]
+    per_trip = turned[trips.ends - 1] - at_start
+    turns = np.ceil(per_trip / (2 * np.pi)) + 1.0  # room for each segment's phase
+    base = 2 * np.pi * (np.cumsum(turns) - turns) + phase_rad
+    return before + trips.spread(base - at_start)
+
+
+def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius_m: float, n_teeth: int,
+                  module: WheelModule, phase_rad: np.ndarray, tooth_error: np.ndarray,
+                  missing: np.ndarray) -> np.ndarray:
+    """The speeds (m/s) the module last published at each grid sample, shape (wheels, n), from the
+    wheels' angular speeds ``omega_rps`` (wheels, n) on the grid of ``trips``.
+
+    Per wheel and trip: ``phase_rad`` (wheels, trips) the ring's angle at the trip's start,
+    ``tooth_error`` (wheels, trips, N) each tooth's edge position error in pitches (|e| < 0.5),
+    ``missing`` (wheels, trips, N) teeth without an edge (never two side by side). Edges are
+    assigned to a window by their nominal angle (a tooth's error is a fraction of a pitch).
+    """
+    wheels, n = omega_rps.shape
+    # The wheels one after the other: one time line and one non-decreasing angle for all.
+    runs = Segments.of(np.tile(trips.lengths, wheels))
+    omega = omega_rps.ravel()
+    angle = wheel_angles(omega, runs, rate_hz, phase_rad.ravel())
+    total = len(angle)
+    t = np.arange(total, dtype=float) * (1.0 / rate_hz)
+    run_start = runs.spread(runs.starts / rate_hz)
+    step_s = 1.0 / rate_hz
+    aligned = abs(step_s / module.tick_s - round(step_s / module.tick_s)) < 1e-9 and module.window_s <= step_s
+    if aligned:
+        # Every grid instant is a tick, and the window reaches back into the grid step before it,
+        # over which the wheel turned at the previous sample's speed (none before a trip's start).
+        held = np.empty_like(omega)
+        held[1:] = omega[:-1]
+        held[runs.starts] = 0.0
+        tick, b, a = t, angle, angle - held * module.window_s
+        window_s = np.where(held > 0, module.window_s, np.inf)
+    else:
+        def angle_at(time: np.ndarray) -> np.ndarray:
+            x = np.minimum(time * rate_hz, total - 1.0)
+            i = np.minimum(x.astype(np.int64), total - 2)
+            return angle[i] + (angle[i + 1] - angle[i]) * (x - i)
+
+        local_t = t - run_start
+        tick = np.floor(local_t / module.tick_s + 1e-9) * module.tick_s + run_start
+        start = np.maximum(tick - module.window_s, run_start)  # the window stays within the trip
+        b, a = angle_at(tick), angle_at(start)
+        window_s = np.where(tick > start, tick - start, np.inf)
+    pitch = 2 * np.pi / n_teeth
+    row = runs.owner * n_teeth
+    error = tooth_error.reshape(-1)
+
+    last = np.floor(b / pitch).astype(np.int64)  # the last edge at or before the tick
+    first = np.ceil(a / pitch).astype(np.int64)  # the first at or after the window's start
+    k_last, k_first = last % n_teeth, first % n_teeth
+    counted = last - first + 1
+    if missing.any():
+        gone = missing.reshape(-1)
+        before = np.concatenate([np.zeros((wheels * len(trips.lengths), 1)),
+                                 np.cumsum(missing.reshape(-1, n_teeth), axis=1)], axis=1).ravel()
+        per_turn = missing.reshape(-1, n_teeth).sum(axis=1)[runs.owner]
+        rows1 = runs.owner * (n_teeth + 1)
+        # teeth with an edge among first .. last: missing ones are not counted
+        counted -= ((last + 1) // n_teeth - first // n_teeth) * per_turn + (
+            before[rows1 + (k_last + 1)] - before[rows1 + k_first])
+        drop_last, drop_first = gone[row + k_last], gone[row + k_first]
+        last -= drop_last
+        k_last = np.where(drop_last, (k_last - 1) % n_teeth, k_last)
+        first += drop_first
+        k_first = np.where(drop_first, (k_first + 1) % n_teeth, k_first)
+    if module.method == "count":
+        return (np.maximum(counted, 0) * pitch * radius_m / window_s).reshape(wheels, n)
+    # Fewer than two edges in the window: the interval between the last edge and the edge before it.
+    few = counted < 2
+    if few.any():
+        prev = last[few] - 1
+        k_prev = prev % n_teeth
+        if missing.any():
+            skip = gone[row[few] + k_prev]
+            prev -= skip
+            k_prev = np.where(skip, (k_prev - 1) % n_teeth, k_prev)
+        first[few], k_first[few] = prev, k_prev
+        counted[few] = 2
+    edge_last, edge_first = (last + error[row + k_last]) * pitch, (first + error[row + k_first]) * pitch
+    if aligned:
+        # Within the grid step before a tick the wheel turns at ``held``: edges there are timed directly,
+        # the intervals of slow wheels (fewer than two edges in the window) by interpolation.
+        rate = np.where(few, 1.0, held)
+        t_last, t_first = t - (b - edge_last) / rate, t - (b - edge_first) / rate
+        t_last[few] = np.interp(edge_last[few], angle, t)
+        t_first[few] = np.interp(edge_first[few], angle, t)
+    else:
+        t_last, t_first = np.interp(edge_last, angle, t), np.interp(edge_first, angle, t)
+    span = t_last - t_first
+    speed = (counted - 1) * pitch * radius_m / np.where(span > 0, span, np.inf)
+    stale = (tick - t_last > module.timeout_s) | (t_first < run_start) | (span <= 0)
+    return np.where(stale, 0.0, speed).reshape(wheels, n)
