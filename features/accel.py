@@ -113,8 +113,11 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
     width = window_samples(WHEEL_ACCEL_HIGHPASS_S, trip.rate_hz)
 
     wheels = calibrated_or_raw(trip, ref)
-    sources = np.where(usable, np.vstack([smooth_derivative(wheels, trip), trip.signals["accel_long"]]), np.nan)
-    sources = sources - moving_mean(sources, width)  # high-passed, all five at once
+    sources = np.empty((5, trip.n))
+    sources[:4] = smooth_derivative(wheels, trip)
+    sources[4] = trip.signals["accel_long"]
+    sources[:, ~usable] = np.nan
+    sources -= moving_mean(sources, width)  # high-passed, all five at once
     sources = sources[:, np.isfinite(sources).all(axis=0)]
     if sources.shape[1] < 2:
         row.nan_all(names, "too_little_rolling")

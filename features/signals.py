@@ -120,10 +120,14 @@ def smallest_step(values: np.ndarray) -> float:
     signal never changes.
     """
     finite = np.isfinite(values)
-    steps = np.abs(np.diff(values if finite.all() else values[finite]))
+    steps = np.diff(values if finite.all() else values[finite])
+    np.abs(steps, out=steps)
     # rounding is monotonic, so the smallest step that survives rounding is the
     # rounded smallest step above half a unit: no need to round every step
-    smallest = float(np.min(steps, where=steps >= 5e-10, initial=np.inf))
+    small = steps < 5e-10
+    candidates = steps.copy() if small.any() else steps
+    candidates[small] = np.inf
+    smallest = float(candidates.min()) if candidates.size else np.inf
     if not np.isfinite(smallest):
         return np.nan
     smallest = float(np.round(smallest, 9))
@@ -160,6 +164,8 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
 def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
     """Moving share of valid samples; rows missing the same samples as the first row share its filter."""
     def share(mask: np.ndarray) -> np.ndarray:
+        if mask.ndim == 1:
+            return _sparse_gap_share(mask, width)
         return uniform_filter1d(mask.astype(np.float64), width, axis=-1, mode="constant", cval=0.0)
 
     if valid.ndim == 1:
@@ -171,6 +177,20 @@ def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
     count[like_first] = share(valid[0])
     count[~like_first] = share(valid[~like_first])
     return count
+
+
+def _sparse_gap_share(valid: np.ndarray, width: int) -> np.ndarray:
+    """Moving share of valid samples in one trace: the window's share inside the trace, less 1/width for
+    every missing sample in the window. A log misses a cell here and there, so when the missing
+    samples are few this touches only their windows instead of filtering the whole trace."""
+    missing = np.flatnonzero(~valid)
+    if missing.size * width > valid.size // 8:
+        return uniform_filter1d(valid.astype(np.float64), width, mode="constant", cval=0.0)
+    share = _window_share(valid.size, width)
+    half = width // 2
+    touched = (missing[:, None] + np.arange(-half, half + 1)).ravel()
+    np.subtract.at(share, touched[(touched >= 0) & (touched < valid.size)], 1.0 / width)
+    return share
 
 
 def _window_share(n: int, width: int) -> np.ndarray:

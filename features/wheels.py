@@ -206,7 +206,7 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
     typical_speed = median(windows.speed[usable])
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
     with np.errstate(invalid="ignore", divide="ignore"):
-        log_speed = np.log(np.where(usable, trip.wheels, np.nan))
+        log_speed = np.log(trip.wheels, out=np.full(trip.wheels.shape, np.nan), where=usable)
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
     fast = (log_speed - moving_mean(log_speed, width))[:, usable]
     first, second = np.array(WHEEL_PAIRS).T
@@ -227,6 +227,9 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
     tone-ring fault, not a stopped vehicle (CHECKS.md, common practice).
     Source: wheel speeds only.
     """
+    with np.errstate(invalid="ignore"):
+        rolling = trip.wheels >= ROLLING_MPS
+    n_rolling = rolling.sum(axis=0)
     for i, pos in enumerate(POSITIONS):
         name = f"wheel_dropouts_{pos}"
         if not np.isfinite(trip.wheels[i]).any():
@@ -235,9 +238,8 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
         if not distance_km >= DROPOUT_MIN_KM:
             row.nan(name, "too_little_distance")
             continue
-        others = np.delete(trip.wheels, i, axis=0)
-        with np.errstate(invalid="ignore"):
-            dropped = (trip.wheels[i] < DROPOUT_ZERO_MPS) & np.all(others >= ROLLING_MPS, axis=0)
+        with np.errstate(invalid="ignore"):  # the other three all roll
+            dropped = (trip.wheels[i] < DROPOUT_ZERO_MPS) & (n_rolling - rolling[i] == 3)
         row.set(name, 100.0 * count_events(dropped) / distance_km)
 
 
