@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 from tqdm import tqdm
 
-from synthetic_fleet.config import SimConfig, sim_config
+from synthetic_fleet.config import SimConfig, WheelModule, sim_config
 from synthetic_fleet.export import STYLES, ExportStyle, write_trips_csv
 from synthetic_fleet.faults import (
     LAMP_SEVERITY,
@@ -33,7 +33,7 @@ from synthetic_fleet.faults import (
     TYRE_DISTRACTOR_KINDS,
     parse_fault,
 )
-from synthetic_fleet.logger import LOGGERS, LoggerProfile, grid_rate_hz, logger_rate_hz
+from synthetic_fleet.logger import LOGGER_KINDS, LOGGERS, LoggerProfile, grid_rate_hz, logger_rate_hz
 from synthetic_fleet.platforms import PLATFORMS, Platform, platform
 from synthetic_fleet.scenario import DEPOTS, FLEET_NAME, Depot, synthetic_vin, vehicle_id
 from synthetic_fleet.sensors import SensorHealth, TripCondition
@@ -457,10 +457,14 @@ class FleetSummary:
     lamps_lit: int
     distractors: int
     seconds: float
+    config: str = "tuning"
+    loggers: tuple[tuple[str, int], ...] = ()  # (logger kind, vehicles)
 
     def describe(self) -> str:
         return "\n".join([
-            f"{self.fleet_name}: {self.n_vehicles} vehicles over {self.days} days",
+            f"{self.fleet_name}: {self.n_vehicles} vehicles over {self.days} days "
+            f"(simulator configuration: {self.config})",
+            "  loggers: " + ", ".join(f"{n} {kind}" for kind, n in self.loggers),
             f"  {self.n_files} trip files, {self.n_samples:,} samples ({self.n_bytes / 1e6:.0f} MB) "
             f"in {self.seconds:.1f} s",
             f"  sensor faults: {len(self.faults)} ({', '.join(self.faults) or 'none'}); "
@@ -509,8 +513,8 @@ def _write_tables(out: Path, plan: FleetPlan, fleet_rate_hz: float) -> None:
         out / "service_history.csv", index=False, lineterminator="\n")
 
 
-def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: float,
-                   analog: bool) -> tuple[int, int, int]:
+def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: float, analog: bool,
+                   module: WheelModule) -> tuple[int, int, int]:
     """(samples, bytes, files) of one vehicle's trips; a unit of work for a worker process.
 
     The trips go through the simulation in groups of about _GROUP_SAMPLES
@@ -526,7 +530,8 @@ def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: f
         sims = simulate_trips(v.spec, v.health, [t.condition for t in group], vehicle_id=v.vehicle_id,
                               starts=[t.start for t in group], drives=[t.drive for t in group],
                               durations_s=[t.duration_s for t in group], fleet_rate_hz=fleet_rate_hz,
-                              logger=v.logger, rngs=[np.random.default_rng([seed, v.index, 2, t.number]) for t in group])
+                              logger=v.logger, rngs=[np.random.default_rng([seed, v.index, 2, t.number]) for t in group],
+                              module=module)
         sizes = write_trips_csv([folder / f"{v.vehicle_id}_{t.start.strftime('%Y%m%dT%H%M%SZ')}.csv" for t in group],
                                 v.style, vehicle_id=v.vehicle_id, vin=v.vin,
                                 starts_ms=[t.start.value // 1_000_000 for t in group], lengths=sims.lengths,
@@ -593,12 +598,14 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
         # not fork: a fork does not copy the threads of numeric libraries' pools safely) take
         # jobs from the front of the queue, this process takes back the smallest from its end
         # (a job not yet handed to a process can be cancelled), so the two meet in the middle.
-        futures = [pool.submit(_write_vehicle, out, trips, seed, rate_hz, analog_accel) for trips in jobs] if pool else []
+        module = plan.config.wheel_module
+        futures = ([pool.submit(_write_vehicle, out, trips, seed, rate_hz, analog_accel, module) for trips in jobs]
+                   if pool else [])
         for future in futures:
             future.add_done_callback(lambda f: f.cancelled() or bar.update())
         for k in reversed(range(len(jobs))):
             if pool is None or futures[k].cancel():
-                results.append(_write_vehicle(out, jobs[k], seed, rate_hz, analog_accel))
+                results.append(_write_vehicle(out, jobs[k], seed, rate_hz, analog_accel, module))
                 bar.update()
         results += [future.result() for future in futures if not future.cancelled()]
     bar.close()
@@ -608,6 +615,7 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
     summary = FleetSummary(out, FLEET_NAME, n_vehicles, days, n_files, n_samples, n_bytes, tuple(faults),
                            sum(d is not None for d in plan.lamp_dates.values()),
                            sum(1 for v in plan.vehicles if v.fault and not parse_fault(v.fault.name).is_sensor_fault),
-                           time.perf_counter() - t0)
+                           time.perf_counter() - t0, plan.config.name,
+                           tuple((kind, sum(v.logger.name == kind for v in plan.vehicles)) for kind in LOGGER_KINDS))
     log.info("synthetic fleet written: %s files, %s samples", n_files, n_samples)
     return summary

@@ -101,7 +101,7 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     counted = last - first + 1
     if missing.any():
         gone = missing.reshape(-1)
-        before = np.concatenate([np.zeros((wheels * len(trips.lengths), 1)),
+        before = np.concatenate([np.zeros((wheels * len(trips.lengths), 1), np.int64),
                                  np.cumsum(missing.reshape(-1, n_teeth), axis=1)], axis=1).ravel()
         per_turn = missing.reshape(-1, n_teeth).sum(axis=1)[runs.owner]
         rows1 = runs.owner * (n_teeth + 1)

@@ -81,6 +81,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--rate", type=_positive_float, default=10.0, metavar="HZ", help="sample rate (default 10 Hz)")
     p.add_argument("--start", type=_date, default=dt.date(2026, 3, 2), metavar="DATE",
                    help="first simulated day (default 2026-03-02)")
+    p.add_argument("--config", choices=("tuning", "held-out"), default="tuning",
+                   help="simulator configuration: the tuning one (default) or the held-out one, never used for tuning")
     p.set_defaults(func=cmd_synth)
 
     p = sub.add_parser("ingest", help="read CSV data-log exports into the store",
@@ -205,7 +207,7 @@ def cmd_synth(args) -> int:
     from synthetic_fleet import generate_fleet
 
     summary = generate_fleet(args.out, n_vehicles=args.vehicles, days=args.days, seed=args.seed,
-                             rate_hz=args.rate, start=args.start, progress=_progress(args))
+                             rate_hz=args.rate, start=args.start, progress=_progress(args), config=args.config)
     print(summary.describe())
     return EXIT_OK
 
