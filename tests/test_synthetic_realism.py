@@ -2,7 +2,6 @@
 
 import dataclasses
 import datetime as dt
-import hashlib
 
 import numpy as np
 import pandas as pd
@@ -19,6 +18,7 @@ from synthetic_fleet.segments import Segments
 from synthetic_fleet.sensors import SensorHealth, TripCondition, _road_input
 from synthetic_fleet.tone_ring import module_speeds, speed_quantum_mps
 from synthetic_fleet.trip import simulate_trip
+from test_synthetic_fleet import _digest  # noqa: E402 (tests/ is on sys.path under pytest)
 from tracktrue.schema import NUMERIC_SIGNALS, WHEEL_SPEED_COLUMNS
 
 START = pd.Timestamp("2026-03-02T07:14:00Z")
@@ -258,14 +258,6 @@ def test_tread_wear_and_seasonal_swaps():
     first, last = trips[0].condition.tyre_factor, trips[-1].condition.tyre_factor
     driven = [0, 1] if v.spec.driven_axle == "front" else [2, 3]
     assert np.all(last < first) and np.all((first - last)[driven] > np.delete(first - last, driven))
-
-
-def _digest(out):
-    h = hashlib.sha256()
-    for f in sorted(out.rglob("*.csv")):
-        h.update(f.relative_to(out).as_posix().encode())
-        h.update(f.read_bytes())
-    return h.hexdigest()
 
 
 def test_the_held_out_configuration_differs_from_the_tuning_one_and_is_deterministic(tmp_path):
