@@ -13,7 +13,7 @@ excluded from the figures): 101, 202, 303 (24 vehicles, 28 days). Held-out
 evaluation seeds, fixed before any evaluation on them: 404, 505, 606, 707.
 
 Simulator configurations (``--configs``): ``default`` and ``held_out``
-(synthetic_fleet.HELD_OUT: other logger rates, resolutions, growth curves and
+(synthetic_fleet.config.HELD_OUT: other logger rates, resolutions, growth curves and
 confounder strengths, chosen once and never used while tuning). Each is run on
 the same seeds; figures are pooled per configuration, and per logger kind
 (loggers.csv beside truth.csv) within each. While iterating, run fewer seeds,
@@ -46,13 +46,15 @@ TARGETS = {  # issue 5: target, direction
 
 
 def simulator_config(name: str):
-    """None for the default configuration, else synthetic_fleet.HELD_OUT (None when the
-    simulator has no held-out configuration: that run is skipped with a message)."""
+    """None for the default configuration, else synthetic_fleet.config.HELD_OUT (None when
+    the simulator has no held-out configuration: that run is skipped with a message)."""
     if name == "default":
         return None
-    import synthetic_fleet
-
-    return getattr(synthetic_fleet, "HELD_OUT", None)
+    try:
+        from synthetic_fleet.config import HELD_OUT
+    except ImportError:
+        return None
+    return HELD_OUT
 
 
 def build_chain(work: Path, seed: int, n_vehicles: int, days: int, config_name: str = "default") -> tuple[Path, dict]:
@@ -145,7 +147,7 @@ def main() -> int:
     variants = [False, True] if args.service else [False]
     configs = [c for c in args.configs if c == "default" or simulator_config(c) is not None]
     for c in sorted(set(args.configs) - set(configs)):
-        print(f"note: the simulator has no {c} configuration (synthetic_fleet.HELD_OUT): that run is skipped")
+        print(f"note: the simulator has no {c} configuration (synthetic_fleet.config.HELD_OUT): skipped")
     reports: dict[tuple[str, bool], list] = {(c, v): [] for c in configs for v in variants}
     for config in configs:
         for seed in args.seeds:

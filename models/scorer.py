@@ -325,7 +325,8 @@ class FleetScorer:
         kinds = np.array([_alarm_kind(c) for c in self.statistics_])
         ratio_strength = strength[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(df))
         wheel_signal = np.array([c.startswith("wheel_signal_") for c in self.statistics_])
-        confirmed = self._corroborated(strength, ratio_strength < 0.5)
+        measured = u.notna().groupby(vehicle_key).cummax().to_numpy(dtype=bool)
+        confirmed = self._corroborated(strength, ratio_strength < 0.5, measured=measured)
         sensor_alarm = alarm[:, wheel_signal].any(axis=1) | np.any(list(confirmed.values()) or [False], axis=0)
         peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
@@ -373,14 +374,18 @@ class FleetScorer:
         long.attrs["per_trip"] = wide
         return long
 
-    def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray) -> dict[str, np.ndarray]:
+    def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray, names: list[str] | None = None,
+                      measured: np.ndarray | None = None) -> dict[str, np.ndarray]:
         """Per non-wheel sensor and trip: one residual past h (strength > 1) and a residual
         against a second source (models.attribution.COMPONENT_RESIDUALS) at least
         ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
         agree (else the wheels explain them). A sensor with only one witness measured
-        needs only that one."""
-        col = {s: j for j, s in enumerate(self.statistics_)}
-        gated = np.where(np.array(["_vs_wheels" in c for c in self.statistics_])[None, :] & ~wheels_agree[:, None],
+        needs only that one: in the fleet's columns, or, with ``measured`` (trips ×
+        names), on the vehicle's own logs so far (a polled logger whose wheel steps gate
+        the wheel-derived references out leaves the level at rest as the only witness)."""
+        names = self.statistics_ if names is None else names
+        col = {s: j for j, s in enumerate(names)}
+        gated = np.where(np.array(["_vs_wheels" in c for c in names])[None, :] & ~wheels_agree[:, None],
                          0.0, strength)
         out = {}
         for component, witnesses in COMPONENT_RESIDUALS.items():
@@ -394,6 +399,9 @@ class FleetScorer:
                 continue
             top2 = np.sort(st, axis=1)[:, -2:]
             out[component] = (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
+            if measured is not None:
+                alone = np.column_stack([measured[:, g].any(axis=1) for g in groups]).sum(axis=1) == 1
+                out[component] |= alone & (top2[:, 1] > 1.0)
         return out
 
     def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -402,8 +410,12 @@ class FleetScorer:
 
         This catches a fault already present when the vehicle's own baseline was
         taken (drift sees only change). Wheel-signal keys count upwards only; a
-        ratio key alone is a tyre (``any`` but not ``sensor``); a versus-wheels key
-        is a sensor alarm only while no wheel ratio is abnormal.
+        ratio key alone is a tyre (``any`` but not ``sensor``); a non-wheel sensor
+        needs residuals against two sources (the drift alarm's rule, at
+        ``inspect_evidence_z`` and ``confirm_strength`` of it), a versus-wheels one
+        counting only while no wheel ratio is abnormal: on the tuning seeds the
+        peer alarms of healthy vehicles came from one residual alone (a steering
+        centre or a standstill yaw level off its peers').
         """
         z = trip_scores[[f"z_{f}" for f in self.features_]].set_axis(self.features_, axis=1)
         keys = self._key_means(z, clip=self.forest_clip)
@@ -413,8 +425,11 @@ class FleetScorer:
         kinds = np.array([_alarm_kind(c) for c in strength.columns])
         beyond = strength.to_numpy() >= self.inspect_evidence_z
         ratio = strength.to_numpy()[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(z))
-        sensor = beyond[:, kinds == "sensor"].any(axis=1) | (beyond[:, kinds == "vs_wheels"].any(axis=1)
-                                                              & (ratio < self.attribution_z))
+        wheel_signal = np.array([c.startswith("wheel_signal_") for c in strength.columns])
+        # a non-wheel sensor against its peers needs two witnesses, as its drift alarm does
+        confirmed = self._corroborated(strength.to_numpy() / self.inspect_evidence_z, ratio < self.attribution_z,
+                                       list(strength.columns))
+        sensor = beyond[:, wheel_signal].any(axis=1) | np.any(list(confirmed.values()) or [False], axis=0)
         return beyond.any(axis=1), sensor
 
     def _held(self, alarm, key) -> np.ndarray:

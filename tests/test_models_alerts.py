@@ -59,3 +59,13 @@ def test_tyre_does_not_hide_a_yaw_sensor_whose_own_residuals_changed():
     assert choose_component(evidence, 4.0, 4.0)[0] == "tyre_rl"
     # the drift says the yaw sensor's rest level and yaw-versus-steering changed together
     assert choose_component(evidence, 4.0, 4.0, changed={"yaw_sensor"})[0] == "yaw_sensor"
+
+
+def test_a_sensor_whose_logs_measure_only_one_witness_needs_only_that_one():
+    sc = _scorer()
+    strong_rest = _strength(accel_lat=1.5)
+    everything = np.ones((1, len(STATS)), dtype=bool)
+    rest_only = _strength(accel_lat=1.0).astype(bool)  # a polled log: the versus-wheels residual is gated out
+    hit = lambda measured: bool(sc._corroborated(strong_rest, np.array([True]), measured=measured)["accel_lat_sensor"][0])  # noqa: E731
+    assert not hit(everything)  # both witnesses measured: the rest level alone is not enough
+    assert hit(rest_only)
