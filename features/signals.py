@@ -299,15 +299,15 @@ def median_of_four(values: np.ndarray) -> np.ndarray:
 
 
 def second_smallest_of_four(values: np.ndarray) -> np.ndarray:
-    """Per-sample second-smallest of the (4, n) wheel array, NaN counted as largest (as np.sort orders it)."""
-    missing = np.isnan(values)
-    v = np.where(missing, np.inf, values) if missing.any() else values
-    low_a, high_a = np.minimum(v[0], v[1]), np.maximum(v[0], v[1])
-    low_b, high_b = np.minimum(v[2], v[3]), np.maximum(v[2], v[3])
-    out = np.minimum(np.maximum(low_a, low_b), np.minimum(high_a, high_b))
-    if v is not values:
-        out[missing.sum(axis=0) > 2] = np.nan
-    return out
+    """Per-sample second-smallest of the (4, n) wheel array, NaN counted as largest (as np.sort orders it).
+
+    A sorting network in an order with NaN on top: the smaller of two is
+    np.fmin (NaN only if both are), the larger np.maximum (NaN if either is).
+    """
+    v = values
+    low_a, high_a = np.fmin(v[0], v[1]), np.maximum(v[0], v[1])
+    low_b, high_b = np.fmin(v[2], v[3]), np.maximum(v[2], v[3])
+    return np.fmin(np.maximum(low_a, low_b), np.fmin(high_a, high_b))
 
 
 def _nan_median_of_four(values: np.ndarray) -> np.ndarray:
