@@ -68,9 +68,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from features.accel import LAT_MIN_S
 from features.row import FeatureRow
-from features.signals import TripArrays, median_of_four
+from features.signals import SMOOTH_S, TripArrays, median_of_four
 from features.spec import VehicleSpec
+from features.wheels import AXLE_AGREE_RADPS, JITTER_HIGHPASS_S, JITTER_MAX_QUANT_PCT
+from features.windows import DROPOUT_ZERO_MPS, STRAIGHT_YAW_RADPS
+from features.yaw import STEER_TURN_MIN_RADPS, STEER_TURN_MIN_S, YAW_FIT_MIN_S, YAW_GAIN_MIN_TURN_S
 from tracktrue.schema import POSITIONS, WHEEL_SPEED_COLUMNS
 from tracktrue.signal_quality import MOVING_MPS, fresh_rate
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
@@ -82,10 +86,10 @@ POLLED_BELOW_HZ = 8.0
 POLLED_STEP_ABOVE_MPS = 0.05 * KPH_MPS
 #: Speed the sensitivities are taken at when the trip never moves (DESIGN.md's cruise speed).
 FALLBACK_SPEED_MPS = 8.0
-#: The Savitzky–Golay window of features.signals.smooth_derivative, s.
+#: The Savitzky–Golay window of features.signals.smooth_derivative (its default), s.
 DERIVATIVE_S = 1.5
-#: The shortest comparison the yaw and lateral features make (features.signals.SMOOTH_S).
-COMPARE_S = 1.0
+#: Fresh values a derivative or high-pass filter needs inside its window.
+FILTER_MIN_VALUES = 5
 _RMS_UNIFORM = 1.0 / math.sqrt(12.0)
 
 
@@ -203,38 +207,40 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     wheels_yaw = (("wheel_speed_rl", rear_yaw_dps), ("wheel_speed_rr", rear_yaw_dps))
     front_yaw = (("wheel_speed_fl", 1.0 / (t_f * DEG_RAD)), ("wheel_speed_fr", 1.0 / (t_f * DEG_RAD)))
 
-    def vote(tolerance_dps: float, inputs=wheels_yaw) -> Gate:
-        """Quantisation alone must stay under half a vote's tolerance over the 1 s comparison."""
-        return Gate("averaged", inputs, tolerance_dps / 2.0, average_s=COMPARE_S)
+    def vote(tolerance_radps: float, inputs=wheels_yaw) -> Gate:
+        """Quantisation alone must stay under half a vote's tolerance over its 1 s comparison (SMOOTH_S)."""
+        return Gate("averaged", inputs, tolerance_radps / DEG_RAD / 2.0, average_s=SMOOTH_S)
 
-    axles = vote(1.0, wheels_yaw + front_yaw)  # features.wheels.AXLE_AGREE_RADPS
-    straight = vote(1.5)  # features.windows.STRAIGHT_YAW_RADPS
-    turning = vote(3.0)  # features.yaw.STEER_TURN_MIN_RADPS
+    axles = vote(AXLE_AGREE_RADPS, wheels_yaw + front_yaw)
+    straight = vote(STRAIGHT_YAW_RADPS)
+    turning = vote(STEER_TURN_MIN_RADPS)
     gates: dict[str, list[Gate]] = {}
     for pos in POSITIONS:
         own = f"wheel_speed_{pos}"
         gates[f"wheel_ratio_{pos}_pct"] = [Gate("averaged", ((own, 100.0 / v),), 0.1, average_s=None)]
-        # spread of a 2 s high-pass (features.wheels): its filter needs five fresh values
-        gates[f"wheel_jitter_{pos}_pct"] = [Gate("spread", ((own, 100.0 / v),), 0.25, min_fresh_hz=5 / 2.0)]
-        # a wheel reads zero below 0.3 m/s: the step must leave that distinguishable (held: one step)
-        gates[f"wheel_dropouts_{pos}"] = [Gate("held", ((own, 1.0),), 0.3 / 2.0)]
-        # the smoothed derivative needs five fresh values inside its 1.5 s window
+        # the spread of a 2 s high-pass
+        gates[f"wheel_jitter_{pos}_pct"] = [Gate("spread", ((own, 100.0 / v),), JITTER_MAX_QUANT_PCT,
+                                                 min_fresh_hz=FILTER_MIN_VALUES / JITTER_HIGHPASS_S)]
+        # a wheel reads zero below 0.3 m/s: one step must leave that distinguishable
+        gates[f"wheel_dropouts_{pos}"] = [Gate("held", ((own, 1.0),), DROPOUT_ZERO_MPS / 2.0)]
         gates[f"wheel_accel_disagree_{pos}_g"] = [
-            Gate("derivative", ((own, 1.0 / G0_MPS2),), 0.03 / 3, min_fresh_hz=5 / DERIVATIVE_S)]
+            Gate("derivative", ((own, 1.0 / G0_MPS2),), 0.03 / 3, min_fresh_hz=FILTER_MIN_VALUES / DERIVATIVE_S)]
     # needed but adding no noise (k = 0): the wheels that judge standstill (features.windows), whose step
     # does not enter a rest value, and dv/dt, whose errors telescope in a distance-weighted mean
     needs_wheels = tuple((c, 0.0) for c in WHEEL_SPEED_COLUMNS)
     gates["yaw_rest_dps"] = [Gate("held", (("yaw_rate", yaw_dps), *needs_wheels), 0.5 / 3)]
-    offset = Gate("averaged", (("yaw_rate", yaw_dps), *wheels_yaw), 0.5 / 3, average_s=30.0)
-    # slope noise σ_b = σ_x / (spread of x · √n), x turning at least 3 deg/s
-    gain = Gate("averaged", (("yaw_rate", yaw_dps / 3.0), *((s, k / 3.0) for s, k in wheels_yaw)), 0.05 / 3,
-                average_s=40.0)
+    offset = Gate("averaged", (("yaw_rate", yaw_dps), *wheels_yaw), 0.5 / 3, average_s=YAW_FIT_MIN_S)
+    # slope noise σ_b = σ_x / (spread of x · √n), x turning at least STEER_TURN_MIN_RADPS
+    turn_dps = STEER_TURN_MIN_RADPS / DEG_RAD
+    gain = Gate("averaged", (("yaw_rate", yaw_dps / turn_dps), *((s, k / turn_dps) for s, k in wheels_yaw)),
+                0.05 / 3, average_s=YAW_GAIN_MIN_TURN_S)
     gates["yaw_offset_dps"] = [offset, axles]
     gates["yaw_gain"] = [gain, axles]
     gates["steer_center_deg"] = [Gate("held", (("steering_angle", 1.0 / DEG_RAD),), 1.0), straight]
     model_dps = v / (spec.steering_ratio * spec.wheelbase_m * DEG_RAD)  # single-track r per steering-wheel rad
     gates["steer_yaw_residual_dps"] = [
-        Gate("averaged", (("yaw_rate", yaw_dps), ("steering_angle", model_dps)), 0.5 / 3, average_s=10.0), turning]
+        Gate("averaged", (("yaw_rate", yaw_dps), ("steering_angle", model_dps)), 0.5 / 3,
+             average_s=STEER_TURN_MIN_S), turning]
     for signal in ("accel_long", "accel_lat"):
         gates[f"{signal}_rest_g"] = [Gate("held", ((signal, 1.0 / G0_MPS2), *needs_wheels), 0.02 / 3)]
     # the distance-weighted mean of a_x − dv/dt: dv/dt's errors telescope (its mean is Δv/T), a_x's average
@@ -242,7 +248,7 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
                                            average_s=None)]
     lat_wheels = tuple((s, v / t_r / G0_MPS2) for s, _ in wheels_yaw)  # v·r per wheel speed, in g
     gates["lat_residual_g"] = [Gate("averaged", (("accel_lat", 1.0 / G0_MPS2), *lat_wheels), 0.02 / 3,
-                                    average_s=30.0), axles]
+                                    average_s=LAT_MIN_S), axles]
     return gates
 
 
