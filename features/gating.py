@@ -53,8 +53,8 @@ signal is named as the reason.
 ``logger_kind`` is inferred from the wheel speeds' figures alone, never from
 any label of the log: ``telematics`` when no wheel speed is logged;
 ``polled`` when the wheel speeds (median over the logged wheels) arrive at
-under 8 values per second while moving (stale repeats counted, so a logger's
-row rate, not the signal's changes, decides), or step by more than
+under 8 values per second (stale repeats counted, so the logger's row rate,
+not the signal's changes, decides), or step by more than
 0.05 km/h; ``bus_capture`` otherwise. The limits sit between the two kinds
 DESIGN.md describes (polled 1–5 Hz and 0.1–1 km/h; bus capture 50–100 Hz and
 0.01 km/h) with a margin on each side. The stale share does not decide: a
@@ -95,16 +95,13 @@ _RMS_UNIFORM = 1.0 / math.sqrt(12.0)
 
 @dataclass(frozen=True)
 class Figures:
-    """One signal's figures on this trip: step (SI), fresh values per second while moving, stale share."""
+    """One signal's figures on this trip: step (SI), fresh values per second while moving, stale share,
+    and values per second over the whole trip, stale repeats counted as if they were fresh."""
 
     step: float
     fresh_hz: float
     stale: float
-
-    @property
-    def row_hz(self) -> float:
-        """Values per second counting the stale repeats as if they were fresh."""
-        return self.fresh_hz / (1.0 - self.stale) if self.stale < 1.0 else math.nan
+    row_hz: float
 
 
 @dataclass(frozen=True)
@@ -157,11 +154,14 @@ def signal_figures(trip: TripArrays, moving: np.ndarray) -> dict[str, Figures]:
     if not moving.any():
         moving = np.ones(trip.n, bool)
     seconds = float(trip.dt[moving].sum())
+    duration = float(trip.dt.sum())
     out = {}
     for name in trip.resolution:
         if trip.has(name):
-            rate, stale = fresh_rate(trip.signal(name), moving, seconds)
-            out[name] = Figures(trip.resolution[name], rate, stale)
+            values = trip.signal(name)
+            rate, stale = fresh_rate(values, moving, seconds)
+            row_hz = np.count_nonzero(np.isfinite(values)) / duration if duration > 0 else math.nan
+            out[name] = Figures(trip.resolution[name], rate, stale, row_hz)
     return out
 
 

@@ -125,6 +125,13 @@ def test_stale_repeats_at_a_fast_row_rate_are_named_as_stale_not_as_a_slow_logge
     assert row["logger_kind"] == "bus_capture"  # the logger's row rate is fast; the values are stale
 
 
+def test_the_logger_kind_of_a_trip_that_never_moves_comes_from_its_row_rate():
+    parked = make_trip(seed=13, rate_hz=10.0, speed_scale=0.0)
+    assert extract_trip_features(parked, SPEC)["logger_kind"] == "bus_capture"
+    slow = make_trip(seed=13, rate_hz=2.0, speed_scale=0.0)
+    assert extract_trip_features(slow, SPEC)["logger_kind"] == "polled"
+
+
 def test_a_fine_fast_hand_made_trip_passes_every_gate():
     row = extract_trip_features(make_trip(seed=12), SPEC)
     gated = {f: r for f, r in reasons(row).items() if r in GATING_REASONS}
@@ -136,7 +143,7 @@ def test_quantisation_noise_of_the_gates_matches_a_uniform_error_and_scipys_savi
     q = 0.5
     x = np.linspace(0.0, 1000.0, 200_001)
     assert np.std(np.round(x / q) * q - x) == pytest.approx(q / math.sqrt(12.0), rel=1e-3)
-    fig = {"s": Figures(step=q, fresh_hz=10.0, stale=0.0)}
+    fig = {"s": Figures(step=q, fresh_hz=10.0, stale=0.0, row_hz=10.0)}
     assert Gate("spread", (("s", 1.0),), 1.0).noise(fig, 0.0) == pytest.approx(q / math.sqrt(12.0))
     assert Gate("averaged", (("s", 1.0),), 1.0, average_s=4.0).noise(fig, 0.0) == pytest.approx(
         q / math.sqrt(12.0) / math.sqrt(40.0))
@@ -152,8 +159,8 @@ def test_the_wheel_yaw_vote_gate_trips_at_design_mds_one_kph_step():
     spec = VehicleSpec.from_mapping(SPEC)
     assert KPH_MPS / spec.track_rear_m / DEG_RAD == pytest.approx(10.6, abs=0.1)
     offset, axles = feature_gates(spec, 15.0)["yaw_offset_dps"]
-    figures = {s: Figures(KPH_MPS, 10.0, 0.0) for s in WHEEL_SPEED_COLUMNS}
-    figures["yaw_rate"] = Figures(0.01 * DEG_RAD, 10.0, 0.0)
+    figures = {s: Figures(KPH_MPS, 10.0, 0.0, 10.0) for s in WHEEL_SPEED_COLUMNS}
+    figures["yaw_rate"] = Figures(0.01 * DEG_RAD, 10.0, 0.0, 10.0)
     assert axles.failure(figures, 600.0) == "resolution_too_coarse"
-    figures.update({s: Figures(0.01 * KPH_MPS, 10.0, 0.0) for s in WHEEL_SPEED_COLUMNS})
+    figures.update({s: Figures(0.01 * KPH_MPS, 10.0, 0.0, 10.0) for s in WHEEL_SPEED_COLUMNS})
     assert axles.failure(figures, 600.0) is None and offset.failure(figures, 600.0) is None
