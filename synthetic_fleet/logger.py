@@ -79,21 +79,53 @@ def _row_step(profile: LoggerProfile, grid_hz: float, row_hz: float) -> int:
     return max(int(round(grid_hz / row_hz)), 1)
 
 
-def apply_logger_trips(signals: dict[str, np.ndarray], t_s: np.ndarray, trips: Segments, grid_hz: float,
-                       profile: LoggerProfile, rngs: list[np.random.Generator], row_hz: float | None = None
-                       ) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray, dict[str, np.ndarray] | None]:
-    """(row times in integer milliseconds from each trip's start, logged columns, rows per trip, read lags)
-    of the ``trips`` whose samples (on a ``grid_hz`` grid) follow one another in ``signals``, each logged
+@dataclass(frozen=True)
+class LoggedRows:
+    """Which grid sample each logged cell shows: a logger's rows, decided before any signal is known
+    (a logger's timing does not depend on the values it reads)."""
+
+    time_ms: np.ndarray  # each row's stamp, ms from its trip's start
+    n_rows: np.ndarray  # rows per trip
+    sources: dict[str, np.ndarray]  # per recorded signal: the grid sample each row's cell shows
+    missing: dict[str, np.ndarray]  # per numeric signal: rows whose cell is empty
+    read_lag_ms: dict[str, np.ndarray] | None  # polled: each cell's read lag behind its row's stamp
+    wheel_step_kph: float
+
+    def needed(self, names, n_samples: int) -> np.ndarray:
+        """The grid samples (of ``n_samples``) that the cells of ``names`` show, sorted."""
+        read = np.zeros(n_samples, dtype=bool)
+        for name in names:
+            read[self.sources[name]] = True
+        return np.flatnonzero(read)
+
+    def gather(self, signals: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """The logged columns: each recorded signal at its cells' samples, wheel speeds in the logger's
+        step, empty cells NaN."""
+        logged = {}
+        for name, source in self.sources.items():
+            column = signals[name][source]
+            if name in WHEEL_SPEED_COLUMNS:
+                unit = self.wheel_step_kph * KPH_MPS
+                column = np.round(column / unit) * unit
+            if name in self.missing:
+                column[self.missing[name]] = np.nan
+            logged[name] = column
+        return logged
+
+
+def plan_rows(t_s: np.ndarray, trips: Segments, grid_hz: float, profile: LoggerProfile,
+              rngs: list[np.random.Generator], names: list[str], row_hz: float | None = None) -> LoggedRows:
+    """The rows of the ``trips`` whose samples (on a ``grid_hz`` grid, times ``t_s`` from each trip's
+    start) follow one another, for the signals ``names`` (those the logger records are kept), each trip
     with its own random stream.
 
     A row every ``grid_hz / row_hz`` grid samples; rows drop, one gap may
     open, rows duplicate, cells go missing. A polled logger's cells are read
     ``read_lag_s`` before the row's stamp (one lag per signal and trip, ±1 grid
-    step per row) and may repeat the previous row's reading; its read lags
-    come back as integer milliseconds per logged signal (else None). Wheel
-    speeds are rounded to the logger's step.
+    step per row) and may repeat the previous row's reading (stale); the read
+    lag it logs is that of its read, stale or not.
     """
-    names = [name for name in signals if profile.signals is None or name in profile.signals]
+    names = [name for name in names if profile.signals is None or name in profile.signals]
     numeric = [name for name in names if name in NUMERIC_SIGNALS]
     step = _row_step(profile, grid_hz, row_hz or grid_hz)
     polled = profile.read_lag_s is not None
@@ -142,25 +174,18 @@ def apply_logger_trips(signals: dict[str, np.ndarray], t_s: np.ndarray, trips: S
     missing_signal, missing_row = (np.concatenate([x + out.starts[k] * (j == 1) for k, x in enumerate(xs)])
                                    for j, xs in enumerate(zip(*missing)))
     lags = np.concatenate(lags, axis=1) if polled else None  # (signals, rows)
-    logged, read_lag_ms = {}, {} if polled else None
+    sources, empty, read_lag_ms = {}, {}, {} if polled else None
     for i, name in enumerate(names):
-        values = signals[name]
         source = rows - lags[i] if polled else rows
         if polled:
             read_lag_ms[name] = time_ms - np.round(t_s[source] * 1000.0).astype(np.int64)
-        if name not in NUMERIC_SIGNALS:
-            logged[name] = values[source]
-            continue
-        j = numeric.index(name)
-        struck = stale_row[stale_signal == j]
-        struck = struck[~np.isin(struck, out.starts)]
-        if len(struck):
-            source = source.copy()
-            source[struck] = source[struck - 1]  # the previous row's reading, again
-        column = values[source]
-        if name in WHEEL_SPEED_COLUMNS:
-            unit = profile.wheel_step_kph * KPH_MPS
-            column = np.round(column / unit) * unit
-        column[missing_row[missing_signal == j]] = np.nan
-        logged[name] = column
-    return time_ms, logged, n_rows, read_lag_ms
+        if name in NUMERIC_SIGNALS:
+            j = numeric.index(name)
+            struck = stale_row[stale_signal == j]
+            struck = struck[~np.isin(struck, out.starts)]
+            if len(struck):
+                source = source.copy()
+                source[struck] = source[struck - 1]  # the previous row's reading, again
+            empty[name] = missing_row[missing_signal == j]
+        sources[name] = source
+    return LoggedRows(time_ms, n_rows, sources, empty, read_lag_ms, profile.wheel_step_kph)

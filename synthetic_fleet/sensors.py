@@ -195,9 +195,11 @@ def _tone_rings(spec: Platform, health: SensorHealth, cond: TripCondition) -> tu
 
 def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, conds: list[TripCondition],
                    centre: np.ndarray, ring_rngs: list[np.random.Generator], rough_rngs: list[np.random.Generator],
-                   fault_rngs: list[np.random.Generator], module: WheelModule) -> np.ndarray:
+                   fault_rngs: list[np.random.Generator], module: WheelModule,
+                   wheel_at: list[np.ndarray] | None = None) -> np.ndarray:
     """Wheel-speed readings (4, n) of all trips from wheel-centre speeds (4, n), as the ABS module
-    publishes them from tooth edges (tone_ring.py), then lost where the sensor gives no signal."""
+    publishes them from tooth edges (tone_ring.py), then lost where the sensor gives no signal;
+    with ``wheel_at`` (each wheel's samples that are read) only there, NaN elsewhere."""
     trips = trace.trips
     a_g = trace.accel_mps2 / G0_MPS2
     front, rear = BRAKE_SLIP_PER_G
@@ -216,8 +218,14 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
         true_speed *= 1.0 + ripple
     phases = np.array([rng.uniform(0.0, 2 * np.pi, 4) for rng in ring_rngs]).T  # (4, trips)
     errors, missing = (np.stack(x, axis=1) for x in zip(*(_tone_rings(spec, health, c) for c in conds)))
-    wheels = module_speeds(true_speed / spec.tyre_radius_m, trips, trace.rate_hz, spec.tyre_radius_m,
-                           spec.tone_ring_teeth, module, phases, errors, missing)
+    args = (true_speed / spec.tyre_radius_m, trips, trace.rate_hz, spec.tyre_radius_m, spec.tone_ring_teeth, module,
+            phases, errors, missing)
+    if wheel_at is None:
+        wheels = module_speeds(*args)
+    else:
+        wheels = np.full_like(true_speed, np.nan)
+        at = np.concatenate([i * trips.total + idx for i, idx in enumerate(wheel_at)])
+        wheels.flat[at] = module_speeds(*args, at=at)
     cutoff_mps = CUTOFF_MPS[spec.wheel_sensor_kind]
     wheels[wheels < cutoff_mps] = 0.0
     for cond, fault_rng, a, b in zip(conds, fault_rngs, trips.starts, trips.ends):
@@ -246,7 +254,8 @@ def measure(trace: DriveTrace, spec: Platform, health: SensorHealth, cond: TripC
 
 
 def measure_trips(trace: DriveTrace, spec: Platform, health: SensorHealth, conds: list[TripCondition],
-                  rngs: list[np.random.Generator], module: WheelModule = WheelModule()) -> dict[str, np.ndarray]:
+                  rngs: list[np.random.Generator], module: WheelModule = WheelModule(),
+                  wheel_at: list[np.ndarray] | None = None) -> dict[str, np.ndarray]:
     """Canonical SI signals as the sensors report them (before any logger artefacts), for the trips of
     ``trace`` one after the other, each with its condition and random stream.
 
@@ -271,7 +280,7 @@ def measure_trips(trace: DriveTrace, spec: Platform, health: SensorHealth, conds
     noise = np.empty((4, trips.total), np.float32)
     for noise_rng, a, b in zip(noise_rngs, trips.starts, trips.ends):
         noise[:, a:b] = noise_rng.standard_normal((4, b - a), dtype=np.float32)
-    wheels = _wheel_signals(trace, spec, health, conds, centre, ring_rngs, rough_rngs, fault_rngs, module)
+    wheels = _wheel_signals(trace, spec, health, conds, centre, ring_rngs, rough_rngs, fault_rngs, module, wheel_at)
 
     def per_trip(values) -> np.ndarray:
         return trips.spread(np.array(values, dtype=float))

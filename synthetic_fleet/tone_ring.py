@@ -52,10 +52,11 @@ def wheel_angles(omega_rps: np.ndarray, trips: Segments, rate_hz: float, phase_r
 
 
 def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius_m: float, n_teeth: int,
-                  module: WheelModule, phase_rad: np.ndarray, tooth_error: np.ndarray,
-                  missing: np.ndarray) -> np.ndarray:
+                  module: WheelModule, phase_rad: np.ndarray, tooth_error: np.ndarray, missing: np.ndarray,
+                  at: np.ndarray | None = None) -> np.ndarray:
     """The speeds (m/s) the module last published at each grid sample, shape (wheels, n), from the
-    wheels' angular speeds ``omega_rps`` (wheels, n) on the grid of ``trips``.
+    wheels' angular speeds ``omega_rps`` (wheels, n) on the grid of ``trips``; or only at the flat
+    indices ``at`` of that (wheels, n) grid (a polled logger reads few of its samples), shape (len(at),).
 
     Per wheel and trip: ``phase_rad`` (wheels, trips) the ring's angle at the trip's start,
     ``tooth_error`` (wheels, trips, N) each tooth's edge position error in pitches (|e| < 0.5),
@@ -68,17 +69,22 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     omega = omega_rps.ravel()
     angle = wheel_angles(omega, runs, rate_hz, phase_rad.ravel())
     total = len(angle)
-    t = np.arange(total, dtype=float) * (1.0 / rate_hz)
+    t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
     run_start = runs.spread(runs.starts / rate_hz)
+    owner = runs.owner
+    held = np.empty_like(omega)  # the speed over the grid step before each sample (none before a trip)
+    held[1:] = omega[:-1]
+    held[runs.starts] = 0.0
+    if at is not None:
+        t, run_start, owner, held, b = t_grid[at], run_start[at], owner[at], held[at], angle[at]
+    else:
+        t, b = t_grid, angle
     step_s = 1.0 / rate_hz
     aligned = abs(step_s / module.tick_s - round(step_s / module.tick_s)) < 1e-9 and module.window_s <= step_s
     if aligned:
         # Every grid instant is a tick, and the window reaches back into the grid step before it,
-        # over which the wheel turned at the previous sample's speed (none before a trip's start).
-        held = np.empty_like(omega)
-        held[1:] = omega[:-1]
-        held[runs.starts] = 0.0
-        tick, b, a = t, angle, angle - held * module.window_s
+        # over which the wheel turned at ``held``.
+        tick, a = t, b - held * module.window_s
         window_s = np.where(held > 0, module.window_s, np.inf)
     else:
         def angle_at(time: np.ndarray) -> np.ndarray:
@@ -86,13 +92,12 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
             i = np.minimum(x.astype(np.int64), total - 2)
             return angle[i] + (angle[i + 1] - angle[i]) * (x - i)
 
-        local_t = t - run_start
-        tick = np.floor(local_t / module.tick_s + 1e-9) * module.tick_s + run_start
+        tick = np.floor((t - run_start) / module.tick_s + 1e-9) * module.tick_s + run_start
         start = np.maximum(tick - module.window_s, run_start)  # the window stays within the trip
         b, a = angle_at(tick), angle_at(start)
         window_s = np.where(tick > start, tick - start, np.inf)
     pitch = 2 * np.pi / n_teeth
-    row = runs.owner * n_teeth
+    row = owner * n_teeth
     error = tooth_error.reshape(-1)
 
     last = np.floor(b / pitch).astype(np.int64)  # the last edge at or before the tick
@@ -103,8 +108,8 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
         gone = missing.reshape(-1)
         before = np.concatenate([np.zeros((wheels * len(trips.lengths), 1), np.int64),
                                  np.cumsum(missing.reshape(-1, n_teeth), axis=1)], axis=1).ravel()
-        per_turn = missing.reshape(-1, n_teeth).sum(axis=1)[runs.owner]
-        rows1 = runs.owner * (n_teeth + 1)
+        per_turn = missing.reshape(-1, n_teeth).sum(axis=1)[owner]
+        rows1 = owner * (n_teeth + 1)
         # teeth with an edge among first .. last: missing ones are not counted
         counted -= ((last + 1) // n_teeth - first // n_teeth) * per_turn + (
             before[rows1 + (k_last + 1)] - before[rows1 + k_first])
@@ -113,30 +118,30 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
         k_last = np.where(drop_last, (k_last - 1) % n_teeth, k_last)
         first += drop_first
         k_first = np.where(drop_first, (k_first + 1) % n_teeth, k_first)
+    shape = (wheels, n) if at is None else (len(at),)
     if module.method == "count":
-        return (np.maximum(counted, 0) * pitch * radius_m / window_s).reshape(wheels, n)
+        return (np.maximum(counted, 0) * pitch * radius_m / window_s).reshape(shape)
     # Fewer than two edges in the window: the interval between the last edge and the edge before it.
-    few = counted < 2
-    if few.any():
-        prev = last[few] - 1
-        k_prev = prev % n_teeth
-        if missing.any():
-            skip = gone[row[few] + k_prev]
-            prev -= skip
-            k_prev = np.where(skip, (k_prev - 1) % n_teeth, k_prev)
-        first[few], k_first[few] = prev, k_prev
-        counted[few] = 2
+    few = np.flatnonzero(counted < 2)
+    prev = last[few] - 1
+    k_prev = prev % n_teeth
+    if missing.any():
+        skip = gone[row[few] + k_prev]
+        prev -= skip
+        k_prev = np.where(skip, (k_prev - 1) % n_teeth, k_prev)
+    first[few], k_first[few], counted[few] = prev, k_prev, 2
     edge_last, edge_first = (last + error[row + k_last]) * pitch, (first + error[row + k_first]) * pitch
     if aligned:
         # Within the grid step before a tick the wheel turns at ``held``: edges there are timed directly,
         # the intervals of slow wheels (fewer than two edges in the window) by interpolation.
-        rate = np.where(few, 1.0, held)
+        rate = held.copy()
+        rate[few] = 1.0
         t_last, t_first = t - (b - edge_last) / rate, t - (b - edge_first) / rate
-        t_last[few] = np.interp(edge_last[few], angle, t)
-        t_first[few] = np.interp(edge_first[few], angle, t)
+        t_last[few] = np.interp(edge_last[few], angle, t_grid)
+        t_first[few] = np.interp(edge_first[few], angle, t_grid)
     else:
-        t_last, t_first = np.interp(edge_last, angle, t), np.interp(edge_first, angle, t)
+        t_last, t_first = np.interp(edge_last, angle, t_grid), np.interp(edge_first, angle, t_grid)
     span = t_last - t_first
     speed = (counted - 1) * pitch * radius_m / np.where(span > 0, span, np.inf)
     stale = (tick - t_last > module.timeout_s) | (t_first < run_start) | (span <= 0)
-    return np.where(stale, 0.0, speed).reshape(wheels, n)
+    return np.where(stale, 0.0, speed).reshape(shape)

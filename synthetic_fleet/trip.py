@@ -15,12 +15,12 @@ import pandas as pd
 from synthetic_fleet.config import WheelModule
 from synthetic_fleet.drive import drive_traces
 from synthetic_fleet.faults import LAMP_SEVERITY, check_confounders, parse_fault
-from synthetic_fleet.logger import LOGGER_KINDS, LOGGERS, LoggerProfile, apply_logger_trips, grid_rate_hz, logger_rate_hz
+from synthetic_fleet.logger import LOGGER_KINDS, LOGGERS, LoggerProfile, grid_rate_hz, logger_rate_hz, plan_rows
 from synthetic_fleet.platforms import Platform, platform
 from synthetic_fleet.scenario import DEPOTS, synthetic_vin
 from synthetic_fleet.sensors import SensorHealth, TripCondition, measure_trips
 from tracktrue.ids import trip_id
-from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, SAMPLE_COLUMNS
+from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, SAMPLE_COLUMNS, WHEEL_SPEED_COLUMNS
 
 #: Radius change of a compact spare (smaller than the road tyre) and of new tyres (deeper tread).
 SPARE_RADIUS_FRAC = (-0.04, -0.025)
@@ -109,7 +109,14 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
     trace = drive_traces(list(drives), list(durations_s), rate, drive_rngs, [c.park_grade_start for c in conds],
                          [c.park_grade_end for c in conds])
     trips = trace.trips
-    signals = measure_trips(trace, spec, health, list(conds), sensor_rngs, module)
+    row_rate = logger_rate_hz(logger, fleet_rate_hz)
+    rows = plan_rows(trace.t_s, trips, rate, logger, logger_rngs, list(SAMPLE_COLUMNS[3:]), row_rate)
+    # A logger reading few of the grid's samples (polled) needs the wheel module only where it reads:
+    # each wheel's cells and, for the vehicle speed (from all four), that speed's cells.
+    wheel_at = None
+    if row_rate < rate and set(WHEEL_SPEED_COLUMNS) <= set(rows.sources):
+        wheel_at = [rows.needed([w, "vehicle_speed"], trips.total) for w in WHEEL_SPEED_COLUMNS]
+    signals = measure_trips(trace, spec, health, list(conds), sensor_rngs, module, wheel_at)
     faults = [parse_fault(c.fault) if c.fault else None for c in conds]
     lit = [f.lamps if f else (False, False) for f in faults]
     lamp = trace.t_s >= trips.spread([np.inf if c.lamp_from_s is None else c.lamp_from_s for c in conds])
@@ -126,9 +133,8 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
         if cond.esc_off_from_s is not None:
             esc |= t >= cond.esc_off_from_s
     signals["dtc"] = dtc
-    row_rate = logger_rate_hz(logger, fleet_rate_hz)
-    time_ms, logged, lengths, lags = apply_logger_trips(signals, trace.t_s, trips, rate, logger, logger_rngs, row_rate)
-    return SimulatedTrips(vehicle_id, list(starts), lengths, time_ms, logged, row_rate, lags)
+    return SimulatedTrips(vehicle_id, list(starts), rows.n_rows, rows.time_ms, rows.gather(signals), row_rate,
+                          rows.read_lag_ms)
 
 
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
