@@ -92,28 +92,41 @@ def stabilise(raw: pd.DataFrame, trip_scores: pd.DataFrame, as_of: dt.date, hist
     published service_events, ``snoozes`` the published snoozes.
     """
     as_of = pd.Timestamp(as_of).date()
-    prior = _prior_runs(history, as_of)
     events = _events(events, as_of)
-    snoozes = _active_snoozes(snoozes, as_of)
+    repairs = events[events["kind"].isin(REPAIR_KINDS)].groupby("vehicle_id").tail(1).set_index("vehicle_id")
+    repair_day = dict(zip(repairs.index, _day_text(repairs["date"])))
+    # the alert before a repair no longer counts: hysteresis remembers only the runs that knew of
+    # the vehicle's latest repair (a repair entered late also voids the runs before its entry)
+    prior = _prior_runs(history, as_of)
+    memory = prior[_day_text(prior["last_repair"]) == np.array([repair_day.get(v, "") for v in prior["vehicle_id"]], dtype=object)]
+    prev_held = memory.groupby("vehicle_id")["held_status"].last()
+    holding = raw.loc[[level(prev_held.get(v)) > 0 and not (s in LEVEL and level(s) >= level(prev_held.get(v)))
+                       for v, s in zip(raw["vehicle_id"], raw["status"])], "vehicle_id"]
+    memory_of = _by_vehicle(memory[memory["vehicle_id"].isin(holding)])
     scored = trip_scores.loc[np.isfinite(trip_scores["score"].to_numpy(dtype=float)), ["vehicle_id", "start_time"]]
-    scored = scored.assign(start_time=pd.to_datetime(scored["start_time"], utc=True))
+    scored = scored[scored["vehicle_id"].isin(repairs.index)]
+    trips_after = pd.to_datetime(scored["start_time"], utc=True) >= pd.to_datetime(
+        scored["vehicle_id"].map(repairs["date"])).dt.tz_localize("UTC")
+    n_after = trips_after.groupby(scored["vehicle_id"]).sum()
+    # labels and snoozes look at the whole history of the few vehicles that have one
+    nff_of = _by_vehicle(events[events["kind"] == NO_FAULT_FOUND])
+    snooze_of = _by_vehicle(_active_snoozes(snoozes, as_of))
+    runs_of = _by_vehicle(prior[prior["vehicle_id"].isin(set(nff_of) | set(snooze_of))])
     rows = []
     for r in raw.to_dict("records"):
         vid = r["vehicle_id"]
-        mine = events[events["vehicle_id"] == vid]
-        repair = _latest(mine[mine["kind"].isin(REPAIR_KINDS)])
-        r = {**r, "raw_status": r["status"], "status_note": "", "label": "", "snoozed_until": None,
-             "snooze_reason": "", "_nff": False, "last_repair": repair["date"] if repair is not None else None}
-        # the alert before a repair no longer counts: hysteresis remembers only the runs that
-        # knew of the same latest repair (a repair entered late also voids the runs before its entry)
-        runs = prior[(prior["vehicle_id"] == vid) & (_day_text(prior["last_repair"]) == _day_text([r["last_repair"]])[0])]
-        _hold(r, runs, rules)
+        repair = repairs.loc[vid].to_dict() if vid in repair_day else None
+        r = {**r, "raw_status": r["status"], "held_status": r["status"], "status_note": "", "label": "",
+             "snoozed_until": None, "snooze_reason": "", "_nff": False,
+             "last_repair": repair["date"] if repair is not None else None}
+        if vid in memory_of:
+            _hold(r, memory_of[vid], rules)
         if repair is not None:
-            trips = scored[scored["vehicle_id"] == vid]
-            since = pd.Timestamp(repair["date"], tz="UTC")
-            _verify(r, repair, int((trips["start_time"] >= since).sum()), rules)
-        _no_fault_found(r, mine, repair, prior[prior["vehicle_id"] == vid])
-        _snooze(r, snoozes[snoozes["vehicle_id"] == vid], prior[prior["vehicle_id"] == vid])
+            _verify(r, repair, int(n_after.get(vid, 0)), rules)
+        if vid in nff_of:
+            _no_fault_found(r, nff_of[vid], repair, runs_of.get(vid, prior.iloc[0:0]))
+        if vid in snooze_of:
+            _snooze(r, snooze_of[vid], runs_of.get(vid, prior.iloc[0:0]))
         rows.append(r)
     out = pd.DataFrame(rows)
     order = {s: i for i, s in enumerate(STATUSES)}
@@ -133,15 +146,10 @@ def history_rows(status: pd.DataFrame, run_id: str, created_at: pd.Timestamp, as
 
 # ---- the steps, each on one vehicle's row ---------------------------------------
 def _hold(r: dict, runs: pd.DataFrame, rules: StabilityRules) -> None:
-    """Hysteresis: ``held_status`` from the scorer's status and the earlier runs (module doc)."""
+    """Hysteresis where the scorer's status is below the last run's held alert (module doc)."""
     raw = r["raw_status"]
-    r["held_status"] = raw
-    if runs.empty:
-        return
     last = runs.iloc[-1]
     prev = last["held_status"]
-    if level(prev) == 0 or (raw in LEVEL and level(raw) >= level(prev)):
-        return
     # raw is lower than the held alert (or there is too little data to say): count the
     # consecutive runs with new trips for this vehicle whose raw status was lower
     seq = pd.concat([runs[["raw_status", "last_trip"]],
@@ -185,8 +193,7 @@ def _verify(r: dict, repair: dict, n_after: int, rules: StabilityRules) -> None:
         f" (scorer: {r['raw_status']})" if r["raw_status"] not in ("ok", "insufficient_data") else "")
 
 
-def _no_fault_found(r: dict, mine: pd.DataFrame, repair: dict | None, runs: pd.DataFrame) -> None:
-    nff = mine[mine["kind"] == NO_FAULT_FOUND]
+def _no_fault_found(r: dict, nff: pd.DataFrame, repair: dict | None, runs: pd.DataFrame) -> None:
     if repair is not None:
         nff = nff[nff["date"] >= repair["date"]]
     event = _latest(nff)
@@ -262,9 +269,13 @@ def _active_snoozes(snoozes: pd.DataFrame | None, as_of: dt.date) -> pd.DataFram
     return s[pd.to_datetime(s["until"]).dt.date >= as_of].sort_values("created_at")
 
 
+def _by_vehicle(frame: pd.DataFrame) -> dict[str, pd.DataFrame]:
+    return {str(v): g for v, g in frame.groupby("vehicle_id", sort=False)} if len(frame) else {}
+
+
 def _day_text(days) -> np.ndarray:
     """Dates as YYYY-MM-DD text, '' for none (to compare columns that may hold None or NaT)."""
-    return np.array(["" if pd.isna(d) else pd.Timestamp(d).strftime("%Y-%m-%d") for d in days], dtype=object)
+    return pd.to_datetime(pd.Series(days, dtype=object)).dt.strftime("%Y-%m-%d").fillna("").to_numpy(dtype=object)
 
 
 def _latest(events: pd.DataFrame) -> dict | None:
