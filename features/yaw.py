@@ -16,6 +16,7 @@ from features.signals import (
     SMOOTH_S,
     TripArrays,
     deming_fit,
+    dithered_mean,
     median,
     moving_mean,
     nan_median,
@@ -47,7 +48,13 @@ def _to_deg(x: float) -> float:
 
 
 def yaw_rest_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
-    """yaw_rest_dps = median of the yaw-rate sensor over standstill, in deg/s (true yaw is 0)."""
+    """yaw_rest_dps = mean of the yaw-rate sensor over standstill, in deg/s (true yaw is 0).
+
+    A banded mean (features.signals.dithered_mean), not the median: a polled
+    logger's 0.1 deg/s steps would pin a median to a step, while the sensor's
+    own noise dithers the mean to the offset between them. Whether the step
+    is fine enough for the feature at all is features.gating's call.
+    """
     if not trip.has("yaw_rate"):
         row.nan("yaw_rest_dps", "signal_missing")
     elif windows.standstill_reason:
@@ -55,7 +62,8 @@ def yaw_rest_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> Non
     elif seconds(windows.standstill, trip) < REST_MIN_S:
         row.nan("yaw_rest_dps", "no_standstill")
     else:
-        row.set("yaw_rest_dps", _to_deg(nan_median(trip.signals["yaw_rate"][windows.standstill])))
+        yaw = trip.signals["yaw_rate"][windows.standstill]
+        row.set("yaw_rest_dps", _to_deg(dithered_mean(yaw, trip.resolution.get("yaw_rate", np.nan))))
 
 
 def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference, signal: str) -> str | None:

@@ -196,3 +196,35 @@ def test_healthy_features_are_finite_on_ordinary_mixed_trips():
     rows = pd.concat(healthy().values())
     share_finite = rows.notna().mean()
     assert (share_finite >= 0.8).all(), share_finite[share_finite < 0.8]
+
+
+@pytest.mark.parametrize("fault", [f"{kind}_{pos}" for kind in ("tyre_deflation", "tyre_mismatch")
+                                   for pos in POSITIONS])
+def test_a_tyre_radius_change_moves_yaw_gain_only_through_the_wheels_speed_scale(fault):
+    # The wheel yaw reference divides each wheel by its relative radius, calibrated on this
+    # trip's straight cruise, so the tyre's own error cancels (kinematic yaw of a non-steered
+    # axle, CHECKS.md). What one trip cannot know is which wheel rolls true: the calibration
+    # scales all four to their median (the mean of the middle two), which moves by at most half
+    # of one wheel's change, and yaw_gain with it. Without the calibration a 1 % radius error on
+    # one rear wheel would fake v·1 %/track of yaw, tens of per cent of gain at cruise speed.
+    for seed in VEHICLE_SEEDS:
+        faulty, reference = effect(fault, seed)
+        pos = fault.rpartition("_")[2]
+        wheel_change = abs(faulty[per_wheel("ratio", pos)] - reference[per_wheel("ratio", pos)]) / 100.0
+        gain_change = abs(faulty["yaw_gain"] - reference["yaw_gain"]) / reference["yaw_gain"]
+        assert wheel_change > 0.005  # the fault is there
+        assert gain_change <= 0.5 * wheel_change + 1e-4, (seed, gain_change, wheel_change)
+
+
+def test_a_steering_sensor_offset_moves_no_wheel_ratio():
+    # The cornering correction of the ratios takes its curvature from the 2-of-3 consensus of yaw
+    # sensor, rear-axle and front-axle wheel yaw, never from the steering angle, and straightness
+    # votes are centred on the trip's own median: a steering sensor's offset cannot reach a wheel
+    # ratio (DESIGN.md: each residual compares exactly two sources). Same vehicle and route, so
+    # the ratios must agree to rounding, far inside their healthy spread.
+    ratios = [per_wheel("ratio", p) for p in POSITIONS]
+    for seed in VEHICLE_SEEDS:
+        faulty, reference = effect("steer_offset", seed)
+        assert faulty["steer_center_deg"] != pytest.approx(reference["steer_center_deg"], abs=3.0)
+        moved = (faulty - reference).abs()[ratios]
+        assert (moved <= 1e-3).all(), moved

@@ -10,6 +10,8 @@ import pandas as pd
 import pytest
 from scipy.signal import savgol_filter
 
+import synthetic_fleet
+
 from features.extract import extract_trip_features
 from features.kinematics import (
     front_axle_yaw_rate,
@@ -159,3 +161,17 @@ def test_kinematic_yaw_reference_yields_unit_gain_and_the_injected_offset():
 def test_steering_centre_is_the_straight_ahead_steering_wheel_angle():
     row = extract_trip_features(make_trip(seed=7, steer_offset_rad=5 * DEG_RAD), SPEC)
     assert row["steer_center_deg"] == pytest.approx(5.0, abs=0.2)
+
+
+@pytest.mark.parametrize("offset_dps", [0.013, 0.043, 0.077])
+def test_yaw_rest_of_a_polled_log_in_tenth_degree_steps_finds_an_offset_between_steps(offset_dps):
+    # Quantisation with dither (Widrow & Kollár, *Quantization Noise*, 2008, from memory): a
+    # signal carrying noise of about half a step or more, rounded to step q, keeps its mean
+    # to within ~q·exp(−2π²σ²/q²)/π, while its median sits on a step. The simulator's yaw
+    # noise at rest is 0.07 deg/s; polled loggers export it in 0.1 deg/s steps.
+    samples, spec = synthetic_fleet.trip_samples(seed=7, duration_s=900.0)
+    fine = extract_trip_features(samples, spec)["yaw_rest_dps"]
+    step_rad = 0.1 * DEG_RAD
+    polled = samples.assign(yaw_rate=np.round((samples["yaw_rate"] + offset_dps * DEG_RAD) / step_rad) * step_rad)
+    rest = extract_trip_features(polled, spec)["yaw_rest_dps"]
+    assert rest == pytest.approx(fine + offset_dps, abs=0.01)
