@@ -26,7 +26,7 @@ from tracktrue.schema import ALERT_STATUSES, STATUSES
 from tracktrue.store import Store
 from tracktrue.update import run_update
 
-DAYS, SEED, VEHICLES = 24, 31, 8
+DAYS, SEED, VEHICLES = 28, 31, 8
 START = dt.date(2026, 3, 2)
 FIRST_EVENT_DAY = 8
 

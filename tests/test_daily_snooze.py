@@ -1,4 +1,5 @@
-"""`tracktrue snooze` and the dashboard's snooze control: one store (the dashboard's SQLite), folded in by update."""
+"""What a manager enters and `tracktrue update` folds in: snoozes (command and dashboard, one store),
+deleted service entries, no-fault-found outcomes from the plan page."""
 
 import datetime as dt
 from pathlib import Path
@@ -139,3 +140,15 @@ def test_a_mistyped_service_entry_is_deleted_only_after_a_confirmation_and_updat
         run_update([tmp_path / "no-logs"], store)
     events = store.read_table("service_events")
     assert events[["kind", "note", "source"]].values.tolist() == [["calibration", "right", "dashboard"]]
+
+
+def test_a_no_fault_found_outcome_from_the_plan_page_becomes_a_service_event(store, tmp_path):
+    from dashboard.workshop import record_outcome
+
+    record_outcome(store, "VAN-01", dt.date(2026, 3, 19), "no_fault_found", "none", "sensor and ring look fine")
+    record_outcome(store, "VAN-03", dt.date(2026, 3, 19), "fault_found", "yaw_sensor", "loose connector")
+    with pytest.raises(UserError):
+        run_update([tmp_path / "no-logs"], store)  # folds it in, then stops: no trips
+    events = store.read_table("service_events")
+    assert events[["vehicle_id", "kind", "component", "note", "source"]].values.tolist() == [
+        ["VAN-01", "no_fault_found", "", "sensor and ring look fine", "dashboard outcomes"]]

@@ -7,7 +7,9 @@ stage publishes atomically, so a failure or a kill leaves each table at a
 complete generation and the next run finishes the job.
 
 The dashboard's service entries are the whole of the ``dashboard`` source:
-an entry deleted there is removed from ``service_events``. Snoozes (from
+an entry deleted there is removed from ``service_events``. Inspection
+outcomes "no fault found" recorded on the plan page become ``no_fault_found``
+events (source ``dashboard outcomes``), the label models/stability.py reads. Snoozes (from
 ``tracktrue snooze`` and the dashboard, both kept in the dashboard's SQLite
 file) are published whole as ``snoozes``.
 
@@ -53,6 +55,8 @@ LAST_SUCCESS = "last_success.json"
 UPDATE_LOG = "update.log"
 EXIT_MISSING, EXIT_STAGE_FAILED = 4, 5
 DASHBOARD_SOURCE = "dashboard"
+#: Inspection outcomes "no fault found" recorded on the dashboard's plan page.
+OUTCOMES_SOURCE = "dashboard outcomes"
 #: Stages whose UserError means an earlier stage gave them nothing to work on (exit 4).
 NEEDS_EARLIER_STAGES = frozenset({"features", "score"})
 #: Tables whose content decides whether scoring has anything new to do.
@@ -140,10 +144,11 @@ def _run_stages(store, paths, vehicles_csv, service_events_csv, profile, trip_ga
     service = []
     if service_events_csv is not None:
         service.append(step("service events", import_service_events, Path(service_events_csv), store))
-    entries = _dashboard_entries(store)
-    if len(entries) or _has_dashboard_events(store):
-        service.append(step("dashboard service events", import_service_rows, entries, store,
-                            source=DASHBOARD_SOURCE, replace_source=True))
+    for source, rows in ((DASHBOARD_SOURCE, _dashboard_entries(store)),
+                         (OUTCOMES_SOURCE, _no_fault_found_outcomes(store))):
+        if len(rows) or _has_events_from(store, source):
+            service.append(step(f"{source} service events", import_service_rows, rows, store,
+                                source=source, replace_source=True))
     _publish_snoozes(store)
     computed = step("features", run_features, store, progress=progress)
     inputs = _fingerprint(store)
@@ -193,11 +198,22 @@ def _dashboard_entries(store: Store) -> pd.DataFrame:
     return entries.rename(columns={"entry_id": "line"})[["line", "vehicle_id", "date", "kind", "component", "note"]]
 
 
-def _has_dashboard_events(store: Store) -> bool:
-    """Whether service_events holds entries from the dashboard (which a deletion there may remove)."""
+def _no_fault_found_outcomes(store: Store) -> pd.DataFrame:
+    """Plan-page outcomes "no fault found" as no_fault_found service events (line = their order)."""
+    from dashboard.outcomes import read_outcomes
+
+    nff = read_outcomes(store)
+    nff = nff[nff["outcome"] == "no_fault_found"].reset_index(drop=True)
+    return pd.DataFrame({"line": nff.index + 1, "vehicle_id": nff["vehicle_id"],
+                         "date": nff["date"].dt.strftime("%Y-%m-%d"), "kind": "no_fault_found", "component": "",
+                         "note": nff["note"]})
+
+
+def _has_events_from(store: Store, source: str) -> bool:
+    """Whether service_events holds events of ``source`` (which a deletion there may remove)."""
     if not store.has_table("service_events"):
         return False
-    return bool((store.read_table("service_events")["source"] == DASHBOARD_SOURCE).any())
+    return bool((store.read_table("service_events")["source"] == source).any())
 
 
 def _publish_snoozes(store: Store) -> None:
