@@ -70,13 +70,13 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     angle = wheel_angles(omega, runs, rate_hz, phase_rad.ravel())
     total = len(angle)
     t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
-    run_start = runs.spread(runs.starts / rate_hz)
+    run_start_s = runs.starts / rate_hz
     owner = runs.owner
     held = np.empty_like(omega)  # the speed over the grid step before each sample (none before a trip)
     held[1:] = omega[:-1]
     held[runs.starts] = 0.0
     if at is not None:
-        t, run_start, owner, held, b = t_grid[at], run_start[at], owner[at], held[at], angle[at]
+        t, owner, held, b = t_grid[at], owner[at], held[at], angle[at]
     else:
         t, b = t_grid, angle
     step_s = 1.0 / rate_hz
@@ -92,6 +92,7 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
             i = np.minimum(x.astype(np.int64), total - 2)
             return angle[i] + (angle[i + 1] - angle[i]) * (x - i)
 
+        run_start = run_start_s[owner]
         tick = np.floor((t - run_start) / module.tick_s + 1e-9) * module.tick_s + run_start
         start = np.maximum(tick - module.window_s, run_start)  # the window stays within the trip
         b, a = angle_at(tick), angle_at(start)
@@ -121,27 +122,32 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     shape = (wheels, n) if at is None else (len(at),)
     if module.method == "count":
         return (np.maximum(counted, 0) * pitch * radius_m / window_s).reshape(shape)
-    # Fewer than two edges in the window: the interval between the last edge and the edge before it.
-    few = np.flatnonzero(counted < 2)
-    prev = last[few] - 1
+    # The module divides the angle it counts, (counted − 1) pitches, by the time between the first
+    # and the last edge, which lie (last − first + e_last − e_first) pitches apart.
+    apart = (last - first) + (error[row + k_last] - error[row + k_first])
+    if aligned:  # both edges lie in the grid step before the tick, crossed at the speed ``held``
+        speed = held * radius_m * (counted - 1) / np.where(counted >= 2, apart, np.inf)
+        few = np.flatnonzero(counted < 2)
+    else:
+        speed = np.zeros(len(b))
+        few = np.arange(len(b))
+    # Otherwise (and with fewer than two edges in the window, the last edge and the one before it)
+    # the edges are timed by interpolation; no edge for timeout_s, or none since the trip began, reads 0.
+    last, counted = last[few], np.maximum(counted[few], 2)
+    first, k_first = first[few], k_first[few]
+    slow = counted == 2
+    prev = last[slow] - 1
     k_prev = prev % n_teeth
     if missing.any():
-        skip = gone[row[few] + k_prev]
+        skip = gone[row[few][slow] + k_prev]
         prev -= skip
         k_prev = np.where(skip, (k_prev - 1) % n_teeth, k_prev)
-    first[few], k_first[few], counted[few] = prev, k_prev, 2
-    edge_last, edge_first = (last + error[row + k_last]) * pitch, (first + error[row + k_first]) * pitch
-    if aligned:
-        # Within the grid step before a tick the wheel turns at ``held``: edges there are timed directly,
-        # the intervals of slow wheels (fewer than two edges in the window) by interpolation.
-        rate = held.copy()
-        rate[few] = 1.0
-        t_last, t_first = t - (b - edge_last) / rate, t - (b - edge_first) / rate
-        t_last[few] = np.interp(edge_last[few], angle, t_grid)
-        t_first[few] = np.interp(edge_first[few], angle, t_grid)
-    else:
-        t_last, t_first = np.interp(edge_last, angle, t_grid), np.interp(edge_first, angle, t_grid)
+    first[slow], k_first[slow] = prev, k_prev
+    few_row = row[few]
+    t_last = np.interp((last + error[few_row + k_last[few]]) * pitch, angle, t_grid)
+    t_first = np.interp((first + error[few_row + k_first]) * pitch, angle, t_grid)
     span = t_last - t_first
-    speed = (counted - 1) * pitch * radius_m / np.where(span > 0, span, np.inf)
-    stale = (tick - t_last > module.timeout_s) | (t_first < run_start) | (span <= 0)
-    return np.where(stale, 0.0, speed).reshape(shape)
+    slow_speed = (counted - 1) * pitch * radius_m / np.where(span > 0, span, np.inf)
+    stale = (tick[few] - t_last > module.timeout_s) | (t_first < run_start_s[owner[few]]) | (span <= 0)
+    speed[few] = np.where(stale, 0.0, slow_speed)
+    return speed.reshape(shape)
