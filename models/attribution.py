@@ -56,6 +56,14 @@ COMPONENT_RESIDUALS: dict[str, tuple[tuple[str, ...], ...]] = {
     "accel_lat_sensor": (("accel_lat",), ("accel_lat_vs_wheels",)),
 }
 
+#: Residuals that alone isolate a fault mode of their sensor, because no other residual sees
+#: that mode: the steering-versus-yaw residual is computed about the measured steering centre
+#: (features/), so it sees a steering *gain* error but never a centre *offset*; the centre
+#: against the wheel estimate is the offset's only witness. A *change* in it (drift, not a
+#: level against peers: a healthy vehicle's alignment sets its own centre) is a sensor alert;
+#: the inspection checks the alignment first, then recalibrates the sensor.
+SOLE_WITNESS: dict[str, str] = {"steering_angle_sensor": "steering_vs_wheels"}
+
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
 
 

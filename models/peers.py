@@ -125,7 +125,7 @@ def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: flo
     floors = np.fmax(floors, rel_floor * np.nan_to_num(fleet_scale, nan=0.0))
     floors = np.where(floors > 0, floors, 1e-9)
     rows = []
-    for group, ref in reference.groupby("peer_group", sort=True):
+    for group, ref in _group_references(reference):
         values = ref[features].to_numpy(dtype=float)
         vehicles = ref["vehicle_id"].to_numpy()
         med, scale = _median_mad(values, min_ref_trips)
@@ -141,6 +141,18 @@ def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: flo
     keys = pd.DataFrame({"peer_group": [r[0] for r in rows], "vehicle_id": [r[1] for r in rows],
                          "n_ref_vehicles": [r[4] for r in rows]})
     return pd.concat([keys, centers, scales], axis=1)
+
+
+def _group_references(reference: pd.DataFrame):
+    """(peer group, its reference trips): a platform group's own trips; a fallback group
+    ``fleet/<class>`` takes every trip of that logger class, whatever the platform — the
+    fleet, not just the vehicles left over from small platforms (a handful of those would
+    compare a vehicle with two or three others and call a healthy offset extreme)."""
+    logger = reference["peer_group"].str.split("/", n=1).str[1]
+    for group in sorted(reference["peer_group"].unique()):
+        platform, _, cls = group.partition("/")
+        yield group, (reference[logger == cls] if platform == FLEET_GROUP_PREFIX else
+                      reference[reference["peer_group"] == group])
 
 
 def lookup_statistics(trips: pd.DataFrame, stats: pd.DataFrame, leave_one_out: bool = True) -> pd.DataFrame:

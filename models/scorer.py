@@ -47,7 +47,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from models.attribution import COMPONENT_RESIDUALS, choose_component, suggestion_for
+from models.attribution import COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, suggestion_for
 from models.drift import required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
@@ -381,8 +381,10 @@ class FleetScorer:
         ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
         agree (else the wheels explain them). A sensor with only one witness measured
         needs only that one: in the fleet's columns, or, with ``measured`` (trips ×
-        names), on the vehicle's own logs so far (a polled logger whose wheel steps gate
-        the wheel-derived references out leaves the level at rest as the only witness)."""
+        names: drift alarms, i.e. changes), on the vehicle's own logs so far (a polled
+        logger whose wheel steps gate the wheel-derived references out leaves the level
+        at rest as the only witness); with ``measured``, a change in a residual of
+        models.attribution.SOLE_WITNESS counts alone too."""
         names = self.statistics_ if names is None else names
         col = {s: j for j, s in enumerate(names)}
         gated = np.where(np.array(["_vs_wheels" in c for c in names])[None, :] & ~wheels_agree[:, None],
@@ -402,6 +404,8 @@ class FleetScorer:
             if measured is not None:
                 alone = np.column_stack([measured[:, g].any(axis=1) for g in groups]).sum(axis=1) == 1
                 out[component] |= alone & (top2[:, 1] > 1.0)
+                if SOLE_WITNESS.get(component) in col:  # a change only (see SOLE_WITNESS)
+                    out[component] |= gated[:, col[SOLE_WITNESS[component]]] > 1.0
         return out
 
     def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -568,8 +572,10 @@ class FleetScorer:
             feats = [f for f in self.features_ if evidence_key(f) == key]
             f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
             rows = recent[recent["vehicle_id"] == vid]
-            value = float(np.nanmedian(rows[f"raw__{f}"])) if f"raw__{f}" in rows else np.nan
-            center = float(np.nanmedian(rows[f"center__{f}"])) if f"center__{f}" in rows else np.nan
+            with warnings.catch_warnings():  # a feature its logger cannot measure is all NaN
+                warnings.simplefilter("ignore", RuntimeWarning)
+                value = float(np.nanmedian(rows[f"raw__{f}"])) if f"raw__{f}" in rows else np.nan
+                center = float(np.nanmedian(rows[f"center__{f}"])) if f"center__{f}" in rows else np.nan
             words, unit = describe_feature(f)
             group = str(rows["peer_group"].iloc[-1])
             text = (f"{words} {_fmt(value)}{_unit(unit)} against a peer median of {_fmt(center)}{_unit(unit)} "

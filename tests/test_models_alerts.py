@@ -69,3 +69,15 @@ def test_a_sensor_whose_logs_measure_only_one_witness_needs_only_that_one():
     hit = lambda measured: bool(sc._corroborated(strong_rest, np.array([True]), measured=measured)["accel_lat_sensor"][0])  # noqa: E731
     assert not hit(everything)  # both witnesses measured: the rest level alone is not enough
     assert hit(rest_only)
+
+
+def test_a_steering_centre_change_alone_is_a_steering_sensor_alert_but_a_centre_level_is_not():
+    # the steering-versus-yaw residual is taken about the measured centre, so it never sees an
+    # offset: the centre against the wheels is the offset's sole witness (models.attribution)
+    sc = _scorer()
+    centre = _strength(steering_vs_wheels=1.5)
+    measured = np.ones((1, len(STATS)), dtype=bool)
+    drift = sc._corroborated(centre, np.array([True]), measured=measured)
+    peers = sc._corroborated(centre, np.array([True]))
+    assert drift["steering_angle_sensor"][0] and not peers["steering_angle_sensor"][0]
+    assert not sc._corroborated(centre, np.array([False]), measured=measured)["steering_angle_sensor"][0]

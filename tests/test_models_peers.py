@@ -86,3 +86,17 @@ def test_peer_groups_are_platform_by_logger_kind_when_the_features_name_it():
     assert group_of["Q"] == {"fleet/polled"} and g.loc[df["vehicle_id"].str.startswith("Q"), "peer_fallback"].all()
     # a trip whose logger kind is unknown is grouped by its sample rate
     assert group_of["U"] == {"van/lt3hz"}
+
+
+def test_a_fallback_group_is_compared_with_the_whole_fleet_of_its_logger_kind_not_just_its_leftovers():
+    # three pickups (too few for their own group) that happen to agree closely, and six vans
+    # whose healthy offsets spread ±0.1: a pickup 0.15 off its two fellows is ordinary fleet-wide
+    rng = np.random.default_rng(2)
+    vans = {f"V{i}": list(rng.normal(off, 0.01, 12)) for i, off in enumerate(np.linspace(-0.1, 0.1, 6))}
+    pickups = {"P0": list(rng.normal(0.05, 0.01, 12)), "P1": list(rng.normal(0.06, 0.01, 12)),
+               "P2": list(rng.normal(-0.1, 0.01, 12))}
+    df = pd.concat([_fleet(vans, platform="van"), _fleet(pickups, platform="pickup")], ignore_index=True)
+    df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, min_peer_vehicles=5)
+    stats = peer_statistics(df, ["x"], rel_floor=0.0, min_ref_trips=5)
+    z = normalise(df, stats, ["x"])["x"]
+    assert abs(z[df["vehicle_id"] == "P2"].median()) < 3  # against the two other pickups alone it is ~20
