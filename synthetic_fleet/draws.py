@@ -1,6 +1,6 @@
 """Random draws that the simulation's stages share.
 
-Rare events (a dropped row, a stale cell, an erratic tone-ring step) strike
+Rare events (a dropped row, a duplicated row, a stale or missing cell) strike
 each sample independently with a small probability; drawing one uniform
 number per sample to find the few that are struck costs far more than the
 events themselves. The gaps between successes of independent Bernoulli(p)
