@@ -337,6 +337,13 @@ def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: fl
         return mask.copy()
     starts = mask & ~np.concatenate(([False], mask[:-1] & ~trip.gap_after[:-1]))
     ends = mask & ~np.concatenate((mask[1:] & ~trip.gap_after[:-1], [False]))
+    if trim_start_s == 0.0:  # whole runs: mark the long ones from their first to their last sample
+        first, last = np.flatnonzero(starts), np.flatnonzero(ends)
+        long_enough = (trip.t[last] + trip.dt[last] - trip.t[first]) >= min_s
+        marks = np.zeros(mask.size + 1, dtype=np.int32)
+        marks[first[long_enough]] = 1
+        marks[last[long_enough] + 1] = -1
+        return np.cumsum(marks[:-1]) > 0
     run_id = np.cumsum(starts) - 1
     start_t = trip.t[starts]
     end_t = trip.t[ends] + trip.dt[ends]
