@@ -9,6 +9,8 @@ marks) travel inline in their layer.
 
 from __future__ import annotations
 
+import json
+
 import pandas as pd
 
 #: Our palette: slate, teal, amber, plum, moss, brick (series in this order).
@@ -25,12 +27,9 @@ def _series_colour() -> dict:
 
 
 def _inline(frame: pd.DataFrame) -> dict:
-    """Small overlay data as JSON values (timestamps as ISO text)."""
-    out = frame.copy()
-    for c in out.columns:
-        if pd.api.types.is_datetime64_any_dtype(out[c]):
-            out[c] = out[c].map(lambda t: t.isoformat())
-    return {"values": out.astype(object).where(out.notna(), None).to_dict("records")}
+    """Small overlay data as JSON values (timestamps as ISO text, also inside a column of mixed
+    types, as a concat of an empty frame with a timed one gives)."""
+    return {"values": json.loads(frame.to_json(orient="records", date_format="iso", date_unit="s"))}
 
 
 def traces(x: str, x_title: str, y_title: str, title: str, marks: pd.DataFrame | None = None) -> dict:
