@@ -75,9 +75,9 @@ def status_notes(df: pd.DataFrame) -> list[str]:
 
     The dashboard shows the same text. A store scored before models.stability
     existed has neither column: empty notes."""
-    empty = pd.Series("", index=df.index)
-    note = df.get("status_note", empty).fillna("").astype(str)
-    label = df.get("label", empty).fillna("").astype(str)
+    empty = pd.Series("", index=df.index, dtype=object)
+    note, label = (df.get(c, empty).astype(object) for c in ("status_note", "label"))
+    note, label = (s.where(s.notna(), "").astype(str) for s in (note, label))
     return [f"{n}; {lb}" if n and lb else n or lb for n, lb in zip(note, label)]
 
 
