@@ -186,20 +186,25 @@ def _sparse_gap_share(valid: np.ndarray, width: int) -> np.ndarray:
     missing = np.flatnonzero(~valid)
     if missing.size * width > valid.size // 8:
         return uniform_filter1d(valid.astype(np.float64), width, mode="constant", cval=0.0)
-    share = _window_share(valid.size, width)
+    share = _window_share(valid.size, width).copy()
     half = width // 2
     touched = (missing[:, None] + np.arange(-half, half + 1)).ravel()
     np.subtract.at(share, touched[(touched >= 0) & (touched < valid.size)], 1.0 / width)
     return share
 
 
+@lru_cache(maxsize=16)
 def _window_share(n: int, width: int) -> np.ndarray:
-    """Share of a centred ``width`` window inside an ``n``-sample trace (1 away from the ends)."""
+    """Share of a centred ``width`` window inside an ``n``-sample trace (1 away from the ends).
+
+    Read-only and computed once per trace length and width: a trip asks for a few widths many times.
+    """
     share = np.ones(n)
     half = width // 2
     edges = np.arange(n) if n <= 2 * width else np.concatenate((np.arange(half), np.arange(n - half, n)))
     inside = np.minimum(edges + half, n - 1) - np.maximum(edges - half, 0) + 1
     share[edges] = inside / width
+    share.setflags(write=False)
     return share
 
 
