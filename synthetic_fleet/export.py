@@ -38,6 +38,19 @@ class Column:
     polled_decimals: int | None = None  # coarser resolution on a polled logger
     read_lag: bool = False  # the companion column: the signal's read lag behind the row's stamp, integer ms
 
+    def decimals_for(self, polled: bool, wheel_step_kph: float | None = None) -> int:
+        """Decimals printed: the polled ones on a polled logger; a km/h wheel speed with as many as its
+        logger's step needs to be printed exactly (a 1/32 km/h bus step: 5)."""
+        decimals = self.polled_decimals if polled and self.polled_decimals is not None else self.decimals
+        if wheel_step_kph and self.signal.startswith("wheel_speed_") and self.si_per_unit == KPH_MPS:
+            decimals = max(decimals, _exact_decimals(wheel_step_kph))
+        return decimals
+
+
+def _exact_decimals(step: float, most: int = 6) -> int:
+    """The fewest decimals that print every multiple of ``step`` exactly (at most ``most``)."""
+    return next((d for d in range(most) if abs(step * 10**d - round(step * 10**d)) < 1e-9), most)
+
 
 @dataclass(frozen=True)
 class ExportStyle:
@@ -54,11 +67,10 @@ class ExportStyle:
     def column(self, signal: str) -> Column:
         return next(c for c in self.columns if c.signal == signal)
 
-    def resolution_si(self, signal: str, polled: bool = False) -> float:
+    def resolution_si(self, signal: str, polled: bool = False, wheel_step_kph: float | None = None) -> float:
         """The logged step of ``signal`` in SI units (m/s, rad/s, rad, m/s², s)."""
         col = self.column(signal)
-        decimals = col.polled_decimals if polled and col.polled_decimals is not None else col.decimals
-        return 10.0**-decimals * col.si_per_unit
+        return 10.0**-col.decimals_for(polled, wheel_step_kph) * col.si_per_unit
 
 
 def _wheels(fmt: str, unit: str, si: float) -> tuple[Column, ...]:
@@ -285,7 +297,8 @@ _CHOICE_SIGNALS = frozenset({"dtc", "brake", "lamp_abs", "lamp_esc"})
 
 def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, start_ms: np.ndarray,
                 time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool,
-                read_lag_ms: dict[str, np.ndarray] | None = None) -> list[np.ndarray | bytes]:
+                read_lag_ms: dict[str, np.ndarray] | None = None,
+                wheel_step_kph: float | None = None) -> list[np.ndarray | bytes]:
     """A row's text in file order, each cell with its delimiter (or the line end): words (n,) or (n, k)
     of uint64, characters (n, width) of uint8, or bytes the same on every row."""
     point = "," if style.decimal_comma else "."
@@ -322,7 +335,7 @@ def _row_pieces(style: ExportStyle, chosen: tuple[Column, ...], *, vin: str, sta
         elif col.signal == "vin":
             pieces.append(vin.encode("ascii") + sep)
         else:
-            decimals = col.polled_decimals if polled and col.polled_decimals is not None else col.decimals
+            decimals = col.decimals_for(polled, wheel_step_kph)
             if col in style.analog_columns:
                 pieces.append(_number_cells(_analog_v(columns[col.signal]), 10.0**-decimals, decimals, point, sep))
             else:
@@ -374,14 +387,16 @@ def _metadata(style: ExportStyle, chosen: tuple[Column, ...], vehicle_id: str, s
 
 def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, vin: str, starts_ms: list[int],
                     lengths: list[int], time_ms: np.ndarray, columns: dict[str, np.ndarray], polled: bool,
-                    analog: bool, read_lag_ms: dict[str, np.ndarray] | None = None) -> list[int]:
+                    analog: bool, read_lag_ms: dict[str, np.ndarray] | None = None,
+                    wheel_step_kph: float | None = None) -> list[int]:
     """Write several trips of one vehicle, one file each; returns the bytes written per file.
 
     ``time_ms`` (from each trip's start) and the canonical SI ``columns`` hold
     the trips' rows one after the other, ``lengths`` rows each; a signal not
     in ``columns`` has no column (a telematics unit records few). ``polled``
     writes the coarser polled resolutions; ``read_lag_ms`` (a polled logger's
-    per-cell read lags) adds companion columns where the style carries them.
+    per-cell read lags) adds companion columns where the style carries them;
+    km/h wheel speeds get the decimals their logger's ``wheel_step_kph`` needs.
     Rows are formatted in fixed batches that may span trips, so a short trip
     costs no extra array calls; each file gets its slices of the batches' records.
     """
@@ -394,7 +409,8 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
         rows = slice(k * _BATCH_ROWS, min((k + 1) * _BATCH_ROWS, int(ends[-1])))
         pieces = _row_pieces(style, chosen, vin=vin, start_ms=row_start_ms[rows], time_ms=time_ms[rows],
                              columns={name: v[rows] for name, v in columns.items()}, polled=polled,
-                             read_lag_ms=None if read_lag_ms is None else {n: v[rows] for n, v in read_lag_ms.items()})
+                             read_lag_ms=None if read_lag_ms is None else {n: v[rows] for n, v in read_lag_ms.items()},
+                             wheel_step_kph=wheel_step_kph)
         return _rows(pieces, rows.stop - rows.start)
 
     sizes = []
@@ -414,8 +430,8 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
 
 def write_trip_csv(path: Path, style: ExportStyle, *, vehicle_id: str, vin: str, start_ms: int, time_ms: np.ndarray,
                    columns: dict[str, np.ndarray], polled: bool, analog: bool,
-                   read_lag_ms: dict[str, np.ndarray] | None = None) -> int:
+                   read_lag_ms: dict[str, np.ndarray] | None = None, wheel_step_kph: float | None = None) -> int:
     """Write one trip's rows in ``style``; returns the bytes written. ``columns`` are canonical SI."""
     return write_trips_csv([path], style, vehicle_id=vehicle_id, vin=vin, starts_ms=[start_ms],
                            lengths=[len(time_ms)], time_ms=time_ms, columns=columns, polled=polled, analog=analog,
-                           read_lag_ms=read_lag_ms)[0]
+                           read_lag_ms=read_lag_ms, wheel_step_kph=wheel_step_kph)[0]

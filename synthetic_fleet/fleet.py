@@ -536,7 +536,7 @@ def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: f
                                 v.style, vehicle_id=v.vehicle_id, vin=v.vin,
                                 starts_ms=[t.start.value // 1_000_000 for t in group], lengths=sims.lengths,
                                 time_ms=sims.time_ms, columns=sims.columns, polled=v.logger.name != "bus_capture",
-                                analog=analog, read_lag_ms=sims.read_lag_ms)
+                                analog=analog, read_lag_ms=sims.read_lag_ms, wheel_step_kph=v.logger.wheel_step_kph)
         n_samples += sims.n_samples
         n_bytes += sum(sizes)
     return n_samples, n_bytes, len(trips)

@@ -274,3 +274,22 @@ def test_the_held_out_configuration_differs_from_the_tuning_one_and_is_determini
     assert set(held[held.logger_kind == "bus_capture"].rate_hz) == {3.0}  # 1.5 × the fleet's 2 Hz
     with pytest.raises(ValueError, match="held-out"):
         plan_fleet(2, 2, seed=1, config="nonsense")
+
+
+@pytest.mark.parametrize("step_kph,decimals", [(0.03125, 5), (0.25, 2), (1.0, 1)])
+def test_wheel_speeds_print_their_loggers_step_exactly(tmp_path, step_kph, decimals):
+    kind = "bus_capture" if step_kph < 0.1 else "polled"
+    rng = np.random.default_rng(4)
+    sim = simulate_trip(platform("pickup"), SensorHealth.draw(rng), TripCondition(), vehicle_id="S-1", start=START,
+                        drive="suburban", duration_s=200.0, fleet_rate_hz=10.0,
+                        logger=dataclasses.replace(LOGGERS[kind], wheel_step_kph=step_kph), rng=rng)
+    path = tmp_path / "s.csv"
+    write_trip_csv(path, STYLES["A"], vehicle_id="S-1", vin="TV9PKU3D0TS000001", start_ms=START.value // 1_000_000,
+                   time_ms=sim.time_ms, columns=sim.columns, polled=kind == "polled", analog=False,
+                   wheel_step_kph=step_kph)
+    df = pd.read_csv(path, dtype={"Wheel Speed FL [km/h]": str})
+    text = df["Wheel Speed FL [km/h]"].dropna()
+    assert text.str.split(".").str[1].str.len().eq(decimals).all()
+    kph = text.astype(float).to_numpy()
+    np.testing.assert_allclose(kph / step_kph, np.round(kph / step_kph), atol=1e-6)
+    assert len(np.unique(kph)) > 20
