@@ -266,7 +266,7 @@ def test_the_held_out_configuration_differs_from_the_tuning_one_and_is_determini
     assert {"polled_rates_hz", "polled_wheel_steps_kph", "bus_rate_factor", "lamp_after_days", "growth_shapes",
             "rough_share_factor", "heavy_load_share", "wheel_module"} <= differ
     a = generate_fleet(tmp_path / "a", n_vehicles=6, days=2, seed=11, rate_hz=2.0, config=HELD_OUT)
-    b = generate_fleet(tmp_path / "b", n_vehicles=6, days=2, seed=11, rate_hz=2.0, config="held-out")
+    generate_fleet(tmp_path / "b", n_vehicles=6, days=2, seed=11, rate_hz=2.0, config="held-out")
     c = generate_fleet(tmp_path / "c", n_vehicles=6, days=2, seed=11, rate_hz=2.0)
     assert a.config == "held-out" and c.config == "tuning"
     assert _digest(tmp_path / "a") == _digest(tmp_path / "b") != _digest(tmp_path / "c")
