@@ -42,13 +42,15 @@ def wheel_angles(omega_rps: np.ndarray, trips: Segments, rate_hz: float, phase_r
     """Wheel angle (rad) at each grid sample, non-decreasing over all segments: the angle turned before
     the sample (speed held over each grid step) on top of a whole number of turns plus ``phase_rad``
     (per segment)."""
-    turned = np.cumsum(omega_rps) / rate_hz
-    before = turned - omega_rps / rate_hz  # the angle turned before each sample, from the first segment's start
-    at_start = before[trips.starts]
-    per_trip = turned[trips.ends - 1] - at_start
+    angle = np.cumsum(omega_rps)
+    angle -= omega_rps  # the angle turned before each sample, from the first segment's start (in place: large)
+    angle *= 1.0 / rate_hz
+    at_start = angle[trips.starts]
+    per_trip = angle[trips.ends - 1] + omega_rps[trips.ends - 1] / rate_hz - at_start
     turns = np.ceil(per_trip / (2 * np.pi)) + 1.0  # room for each segment's phase
     base = 2 * np.pi * (np.cumsum(turns) - turns) + phase_rad
-    return before + trips.spread(base - at_start)
+    angle += trips.spread(base - at_start)
+    return angle
 
 
 def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius_m: float, n_teeth: int,
@@ -72,13 +74,16 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
     run_start_s = runs.starts / rate_hz
     owner = runs.owner
-    held = np.empty_like(omega)  # the speed over the grid step before each sample (none before a trip)
-    held[1:] = omega[:-1]
-    held[runs.starts] = 0.0
+    # the speed over the grid step before each sample (none before a trip)
     if at is not None:
-        t, owner, held, b = t_grid[at], owner[at], held[at], angle[at]
+        t, owner, b = t_grid[at], owner[at], angle[at]
+        held = omega[np.maximum(at - 1, 0)]
+        held[at == runs.starts[owner]] = 0.0
     else:
         t, b = t_grid, angle
+        held = np.empty_like(omega)
+        held[1:] = omega[:-1]
+        held[runs.starts] = 0.0
     step_s = 1.0 / rate_hz
     aligned = abs(step_s / module.tick_s - round(step_s / module.tick_s)) < 1e-9 and module.window_s <= step_s
     if aligned:
