@@ -45,16 +45,26 @@ SUGGESTIONS: dict[str, str] = {
 }
 
 #: The residuals that involve each non-wheel sensor (the rows of Isermann's residual table),
-#: grouped by the *other* source each compares with (residuals sharing a source would be one
-#: witness, not two). One residual alone cannot name its sensor —
-#: yaw-versus-steering is shared, and a level at rest is also the grade or bank the vehicle
-#: stood on — so a sensor alert on one of these needs residuals against two sources to agree.
-COMPONENT_RESIDUALS: dict[str, tuple[tuple[str, ...], ...]] = {
-    "yaw_sensor": (("yaw",), ("yaw_vs_wheels",), ("steering_vs_yaw",)),
-    "steering_angle_sensor": (("steering_vs_wheels",), ("steering_vs_yaw",)),
-    "accel_long_sensor": (("accel_long",), ("accel_long_vs_wheels",)),
-    "accel_lat_sensor": (("accel_lat",), ("accel_lat_vs_wheels",)),
+#: per fault mode, grouped by the *other* source each compares with (residuals sharing a source
+#: would be one witness, not two). One residual alone cannot name its sensor — yaw-versus-
+#: steering is shared, and a level at rest is also the grade or bank the vehicle stood on — so
+#: a sensor alert needs residuals against two sources *of the same fault mode* to agree. Modes
+#: matter because some residuals are blind to a mode: yaw-versus-steering is averaged over
+#: left and right turns, so a yaw *offset* cancels in it (features/yaw.py) and only a *gain*
+#: error shows; a yaw offset's witnesses are the rate at rest and the intercept against the
+#: wheels, a gain error's the slope against the wheels and the residual against steering.
+COMPONENT_RESIDUALS: dict[str, tuple[tuple[tuple[str, ...], ...], ...]] = {
+    "yaw_sensor": ((("yaw",), ("yaw_vs_wheels",)), (("yaw_gain",), ("steering_vs_yaw",))),
+    "steering_angle_sensor": ((("steering_vs_wheels",), ("steering_vs_yaw",)),),
+    "accel_long_sensor": ((("accel_long",), ("accel_long_vs_wheels",)),),
+    "accel_lat_sensor": ((("accel_lat",), ("accel_lat_vs_wheels",)),),
 }
+
+
+def residuals_of(component: str) -> set[str]:
+    """Every residual that witnesses some fault mode of ``component``."""
+    return {r for mode in COMPONENT_RESIDUALS.get(component, ()) for group in mode for r in group}
+
 
 #: Residuals that alone isolate a fault mode of their sensor, because no other residual sees
 #: that mode: the steering-versus-yaw residual is computed about the measured steering centre
@@ -79,7 +89,7 @@ def choose_component(evidence: dict[str, float], signal_z: float, attribution_z:
     """Suspected component and the evidence key that decided it.
 
     ``evidence`` maps keys ``wheel_signal_<pos>``, ``wheel_ratio_<pos>``,
-    ``yaw``, ``yaw_vs_wheels``, ``steering_vs_wheels``, ``steering_vs_yaw``,
+    ``yaw``, ``yaw_gain``, ``yaw_vs_wheels``, ``steering_vs_wheels``, ``steering_vs_yaw``,
     ``accel_long``, ``accel_long_vs_wheels``, ``accel_lat``,
     ``accel_lat_vs_wheels`` to non-negative strengths (|z| or CUSUM/h);
     missing keys count as 0. ``changed``: the non-wheel sensors whose own residuals
@@ -96,8 +106,8 @@ def choose_component(evidence: dict[str, float], signal_z: float, attribution_z:
     best_ratio = max(ratio, key=ratio.get)
     wheels_abnormal = ratio[best_ratio] >= attribution_z
     vs_wheels = 0.0 if wheels_abnormal else 1.0
-    yaw_rest, yaw_wheels = e("yaw"), vs_wheels * e("yaw_vs_wheels")
-    yaw_own = max(yaw_rest, yaw_wheels)
+    yaw_rest, yaw_wheels, yaw_gain = e("yaw"), vs_wheels * e("yaw_vs_wheels"), e("yaw_gain")
+    yaw_own = max(yaw_rest, yaw_wheels, yaw_gain)
     steer_own = vs_wheels * e("steering_vs_wheels")
     # 2-out-of-3 vote: yaw-versus-steering blames the yaw sensor only when the
     # yaw sensor also disagrees with an independent source (rest or wheels).
@@ -105,8 +115,8 @@ def choose_component(evidence: dict[str, float], signal_z: float, attribution_z:
     yaw_gets_shared = yaw_own >= attribution_z
     candidates = {
         "yaw_sensor": (max(yaw_own, shared if yaw_gets_shared else 0.0),
-                       "yaw" if yaw_rest >= max(yaw_wheels, shared * yaw_gets_shared) else
-                       "yaw_vs_wheels" if yaw_wheels >= shared * yaw_gets_shared else "steering_vs_yaw"),
+                       max((("yaw", yaw_rest), ("yaw_vs_wheels", yaw_wheels), ("yaw_gain", yaw_gain),
+                            ("steering_vs_yaw", shared * yaw_gets_shared)), key=lambda kv: kv[1])[0]),
         "steering_angle_sensor": (max(steer_own, 0.0 if yaw_gets_shared else shared),
                                   "steering_vs_wheels" if steer_own >= shared * (not yaw_gets_shared) else "steering_vs_yaw"),
         "accel_long_sensor": (max(e("accel_long"), vs_wheels * e("accel_long_vs_wheels")),

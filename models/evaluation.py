@@ -186,7 +186,7 @@ def _component_of(feature: str) -> str:
     if key.startswith("wheel_ratio_"):
         return f"tyre_{pos}"
     base = key.split("_vs_")[0]
-    return {"yaw": "yaw_sensor", "steering": "steering_angle_sensor", "accel_long": "accel_long_sensor",
+    return {"yaw": "yaw_sensor", "yaw_gain": "yaw_sensor", "steering": "steering_angle_sensor", "accel_long": "accel_long_sensor",
             "accel_lat": "accel_lat_sensor"}.get(base, "none")
 
 

@@ -63,7 +63,9 @@ def feature_kind(name: str) -> str:
     table = {
         "yaw_rest_dps": "yaw",
         "yaw_offset_dps": "yaw_vs_wheels",
-        "yaw_gain": "yaw",  # a slope: a wheel-radius offset moves the intercept, not the gain
+        # a slope: a wheel-radius offset moves the intercept, not the gain; its own kind, because
+        # a gain error and an offset are two fault modes with different witnesses (attribution)
+        "yaw_gain": "yaw_gain",
         "steer_center_deg": "steering_vs_wheels",
         "steer_yaw_residual_dps": "steering_vs_yaw",
         "accel_long_rest_g": "accel_long",

@@ -47,7 +47,8 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from models.attribution import COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, suggestion_for
+from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, residuals_of,
+                                suggestion_for)
 from models.drift import required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
@@ -338,7 +339,8 @@ class FleetScorer:
         # hysteresis: a sensor alert, once raised, stands while some sensor residual stays at
         # confirm_strength·h or more (a CUSUM hovering about h is one episode, not several)
         raised = sensor_alarm | peer_sensor | score_alert
-        sensor_stats = wheel_signal | np.isin(self.statistics_, [r for ws in COMPONENT_RESIDUALS.values() for w in ws for r in w])
+        witnesses = sorted(set().union(*map(residuals_of, COMPONENT_RESIDUALS)))
+        sensor_stats = wheel_signal | np.isin(self.statistics_, witnesses)
         gated = np.where((kinds == "vs_wheels")[None, :] & (ratio_strength >= 0.5)[:, None], 0.0, strength)
         sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
         wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
@@ -377,8 +379,8 @@ class FleetScorer:
     def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray, names: list[str] | None = None,
                       measured: np.ndarray | None = None) -> dict[str, np.ndarray]:
         """Per non-wheel sensor and trip: one residual past h (strength > 1) and a residual
-        against a second source (models.attribution.COMPONENT_RESIDUALS) at least
-        ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
+        against a second source of the same fault mode (models.attribution.COMPONENT_RESIDUALS)
+        at least ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
         agree (else the wheels explain them). A sensor with only one witness measured
         needs only that one: in the fleet's columns, or, with ``measured`` (trips ×
         names: drift alarms, i.e. changes), on the vehicle's own logs so far (a polled
@@ -390,22 +392,30 @@ class FleetScorer:
         gated = np.where(np.array(["_vs_wheels" in c for c in names])[None, :] & ~wheels_agree[:, None],
                          0.0, strength)
         out = {}
-        for component, witnesses in COMPONENT_RESIDUALS.items():
-            groups = [[col[r] for r in w if r in col] for w in witnesses]
-            groups = [g for g in groups if g]
-            if not groups:
-                continue
-            st = np.column_stack([gated[:, g].max(axis=1) for g in groups])
-            if len(groups) == 1:
-                out[component] = st[:, 0] > 1.0
-                continue
-            top2 = np.sort(st, axis=1)[:, -2:]
-            out[component] = (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
-            if measured is not None:
-                alone = np.column_stack([measured[:, g].any(axis=1) for g in groups]).sum(axis=1) == 1
-                out[component] |= alone & (top2[:, 1] > 1.0)
-                if SOLE_WITNESS.get(component) in col:  # a change only (see SOLE_WITNESS)
-                    out[component] |= gated[:, col[SOLE_WITNESS[component]]] > 1.0
+        for component, modes in COMPONENT_RESIDUALS.items():
+            hit = np.zeros(len(strength), dtype=bool)
+            # a residual shared with another sensor never names this one alone
+            shared = set().union(*(residuals_of(c) for c in COMPONENT_RESIDUALS if c != component))
+            only_one = sum(1 for mode in modes for w in mode if any(r in col for r in w)) == 1
+            for witnesses in modes:
+                named = [w for w in witnesses if any(r in col for r in w)]
+                groups = [[col[r] for r in w if r in col] for w in named]
+                if not groups:
+                    continue
+                st = np.column_stack([gated[:, g].max(axis=1) for g in groups])
+                if len(groups) == 1:
+                    hit |= (st[:, 0] > 1.0) & only_one
+                    continue
+                top2 = np.sort(st, axis=1)[:, -2:]
+                hit |= (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
+                if measured is not None:
+                    seen = np.column_stack([measured[:, g].any(axis=1) for g in groups])
+                    exclusive = np.array([not set(w) & shared for w in named])
+                    alone = (seen.sum(axis=1) == 1) & (seen & exclusive[None, :]).any(axis=1)
+                    hit |= alone & (top2[:, 1] > 1.0)
+            if measured is not None and SOLE_WITNESS.get(component) in col:  # a change only (see SOLE_WITNESS)
+                hit |= gated[:, col[SOLE_WITNESS[component]]] > 1.0
+            out[component] = hit
         return out
 
     def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

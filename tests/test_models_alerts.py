@@ -6,7 +6,7 @@ import numpy as np
 
 from models.scorer import FleetScorer, _latched
 
-STATS = ["wheel_signal_fl", "wheel_ratio_fl", "yaw", "yaw_vs_wheels", "steering_vs_wheels", "steering_vs_yaw",
+STATS = ["wheel_signal_fl", "wheel_ratio_fl", "yaw", "yaw_gain", "yaw_vs_wheels", "steering_vs_wheels", "steering_vs_yaw",
          "accel_lat", "accel_lat_vs_wheels"]
 
 
@@ -81,3 +81,13 @@ def test_a_steering_centre_change_alone_is_a_steering_sensor_alert_but_a_centre_
     peers = sc._corroborated(centre, np.array([True]))
     assert drift["steering_angle_sensor"][0] and not peers["steering_angle_sensor"][0]
     assert not sc._corroborated(centre, np.array([False]), measured=measured)["steering_angle_sensor"][0]
+
+
+def test_witnesses_must_share_the_fault_mode_a_yaw_offset_is_not_confirmed_by_yaw_against_steering():
+    # yaw against steering is averaged over left and right turns: an offset cancels in it
+    # (features/yaw.py), so it confirms a gain error (with the slope against the wheels), never
+    # a rest-level change, which needs the intercept against the wheels (Isermann's table per mode)
+    sc = _scorer()
+    assert not _any(sc, _strength(yaw=1.5, steering_vs_yaw=0.9), True)
+    assert _any(sc, _strength(yaw=1.5, yaw_vs_wheels=0.6), True)
+    assert _any(sc, _strength(yaw_gain=1.5, steering_vs_yaw=0.6), True)
