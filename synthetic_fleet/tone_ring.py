@@ -74,16 +74,30 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
     run_start_s = runs.starts / rate_hz
     owner = runs.owner
-    # the speed over the grid step before each sample (none before a trip)
-    if at is not None:
-        t, owner, b = t_grid[at], owner[at], angle[at]
-        held = omega[np.maximum(at - 1, 0)]
-        held[at == runs.starts[owner]] = 0.0
-    else:
-        t, b = t_grid, angle
-        held = np.empty_like(omega)
-        held[1:] = omega[:-1]
-        held[runs.starts] = 0.0
+    held = np.empty_like(omega)  # the speed over the grid step before each sample (none before a trip)
+    held[1:] = omega[:-1]
+    held[runs.starts] = 0.0
+    shape = (wheels, n) if at is None else (len(at),)
+    out = np.empty(total if at is None else len(at))
+    # In blocks that stay in the processor's cache with their dozen temporaries.
+    for lo in range(0, len(out), _BLOCK):
+        block = slice(lo, lo + _BLOCK)
+        where = block if at is None else at[block]
+        out[block] = _published(t_grid[where], owner[where], held[where], angle[where], angle, t_grid, run_start_s,
+                                rate_hz, radius_m, n_teeth, module, tooth_error, missing)
+    return out.reshape(shape)
+
+
+#: Samples per block of module_speeds.
+_BLOCK = 16384
+
+
+def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray, angle: np.ndarray,
+               t_grid: np.ndarray, run_start_s: np.ndarray, rate_hz: float, radius_m: float, n_teeth: int,
+               module: WheelModule, tooth_error: np.ndarray, missing: np.ndarray) -> np.ndarray:
+    """module_speeds at samples of times ``t`` in runs ``owner``, turning at ``held`` into angle ``b``
+    (the grid's ``angle`` over ``t_grid``; runs start at ``run_start_s``)."""
+    total = len(angle)
     step_s = 1.0 / rate_hz
     aligned = abs(step_s / module.tick_s - round(step_s / module.tick_s)) < 1e-9 and module.window_s <= step_s
     if aligned:
@@ -112,7 +126,7 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     counted = last - first + 1
     if missing.any():
         gone = missing.reshape(-1)
-        before = np.concatenate([np.zeros((wheels * len(trips.lengths), 1), np.int64),
+        before = np.concatenate([np.zeros((gone.size // n_teeth, 1), np.int64),
                                  np.cumsum(missing.reshape(-1, n_teeth), axis=1)], axis=1).ravel()
         per_turn = missing.reshape(-1, n_teeth).sum(axis=1)[owner]
         rows1 = owner * (n_teeth + 1)
@@ -124,9 +138,8 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
         k_last = np.where(drop_last, (k_last - 1) % n_teeth, k_last)
         first += drop_first
         k_first = np.where(drop_first, (k_first + 1) % n_teeth, k_first)
-    shape = (wheels, n) if at is None else (len(at),)
     if module.method == "count":
-        return (np.maximum(counted, 0) * pitch * radius_m / window_s).reshape(shape)
+        return np.maximum(counted, 0) * pitch * radius_m / window_s
     # The module divides the angle it counts, (counted − 1) pitches, by the time between the first
     # and the last edge, which lie (last − first + e_last − e_first) pitches apart.
     apart = (last - first) + (error[row + k_last] - error[row + k_first])
@@ -155,4 +168,4 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     slow_speed = (counted - 1) * pitch * radius_m / np.where(span > 0, span, np.inf)
     stale = (tick[few] - t_last > module.timeout_s) | (t_first < run_start_s[owner[few]]) | (span <= 0)
     speed[few] = np.where(stale, 0.0, slow_speed)
-    return speed.reshape(shape)
+    return speed
