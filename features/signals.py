@@ -42,13 +42,23 @@ class TripArrays:
     resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
     logged: frozenset[str] = frozenset()  #: signals with at least one sample present
     missing: Mapping[str, float] = field(default_factory=dict)  #: share of missing samples per signal (and brake)
-    _smoothed: dict = field(default_factory=dict, repr=False, compare=False)
+    _memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     def smoothed(self, name: str) -> np.ndarray:
         """A signal's centred 1 s moving mean (computed once per trip: several features compare on it)."""
-        if name not in self._smoothed:
-            self._smoothed[name] = moving_mean(self.signal(name), window_samples(SMOOTH_S, self.rate_hz))
-        return self._smoothed[name]
+        key = ("smoothed", name)
+        if key not in self._memo:
+            self._memo[key] = moving_mean(self.signal(name), window_samples(SMOOTH_S, self.rate_hz))
+        return self._memo[key]
+
+    @property
+    def speed(self) -> np.ndarray:
+        """Per-sample median of the four wheel speeds, m/s (computed once per trip: windows and gates share it)."""
+        if "speed" not in self._memo:
+            speed = median_of_four(self.wheels)
+            speed.setflags(write=False)  # shared: nobody may change it in place
+            self._memo["speed"] = speed
+        return self._memo["speed"]
 
     @property
     def n(self) -> int:

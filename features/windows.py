@@ -26,7 +26,6 @@ from features.signals import (
     TripArrays,
     keep_runs,
     median,
-    median_of_four,
     moving_mean,
     moving_std_at,
     second_smallest_of_four,
@@ -72,7 +71,7 @@ class Windows:
 
 def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
     """The qualifying windows of one trip (DESIGN.md feature table)."""
-    speed = median_of_four(trip.wheels)
+    speed = trip.speed
     accel = smooth_derivative(speed, trip)
     brake_on = trip.brake == 1.0
     with np.errstate(invalid="ignore"):
