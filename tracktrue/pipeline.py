@@ -6,6 +6,7 @@ individual commands call, so the demo proves the commands a user runs.
 
 from __future__ import annotations
 
+import hashlib
 import json
 import logging
 import time
@@ -25,6 +26,16 @@ def demo_fleet_dir(store: Store) -> Path:
     return root.with_name(root.name + DEMO_FLEET_SUFFIX)
 
 
+def _simulator_fingerprint() -> str:
+    """A digest of the simulator's source, so a fleet written by older simulator code is regenerated."""
+    import synthetic_fleet
+
+    digest = hashlib.sha1()
+    for path in sorted(Path(synthetic_fleet.__file__).parent.glob("*.py")):
+        digest.update(path.name.encode() + b"\0" + path.read_bytes())
+    return digest.hexdigest()[:16]
+
+
 def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, progress: bool) -> int:
     """synth → ingest (logs, registry, service history) → features → score → rank, printing each step."""
     from features import run_features
@@ -39,10 +50,10 @@ def run_demo(store: Store, n_vehicles: int | None, days: int | None, seed: int, 
     t0 = time.perf_counter()
 
     _step(1, "generate the synthetic demo fleet")
-    params = {"vehicles": n_vehicles, "days": days, "seed": seed}
+    params = {"vehicles": n_vehicles, "days": days, "seed": seed, "simulator": _simulator_fingerprint()}
     marker = fleet_dir / "demo-params.json"
     if marker.exists() and json.loads(marker.read_text()) == params:
-        print(f"  {fleet_dir} already holds this fleet (same size and seed); reusing it")
+        print(f"  {fleet_dir} already holds this fleet (same size, seed and simulator); reusing it")
     else:
         summary = generate_fleet(fleet_dir, n_vehicles=n_vehicles, days=days, seed=seed, progress=progress)
         marker.write_text(json.dumps(params))  # written last: a killed run regenerates
