@@ -110,8 +110,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("update", help="nightly: ingest new logs, features for new trips, score, publish",
                        description="One command for a scheduler: ingest what is new (logs, registry, service "
-                       "events, service events entered in the dashboard), compute features for new trips, score "
-                       "and publish. Records runs/last_success.json and appends to runs/update.log. Exit codes: "
+                       "events, what was entered in the dashboard: service events, no-fault-found outcomes, "
+                       "snoozes), compute features for new trips, score and publish. Records runs/last_success.json and appends to runs/update.log. Exit codes: "
                        "0 ok, 1 finished with rejected input, 2 bad arguments, 3 another run holds the lock, "
                        "4 a prerequisite is missing, 5 a stage failed (the message names it).")
     p.add_argument("paths", nargs="+", type=Path, metavar="PATH", help="CSV log files or folders")
