@@ -52,6 +52,7 @@ _TEXT = {"trip_id", "vehicle_id", "signal", "source_file", "sample_file", "sourc
 _INT = {"n_samples", "n_rows", "n_rejected", "n_trips", "row"}
 _TIME = {"start_time", "end_time", "ingested_at"}
 _BOOL = {"present"}
+_DATE = {"next_service_date"}
 _KEYS = {"trips": "trip_id", "vehicles": "vehicle_id", "ingested_files": "path"}
 TABLE_COLUMNS = {"trips": TRIP_COLUMNS, "trip_signals": TRIP_SIGNALS_COLUMNS, "vehicles": VEHICLE_COLUMNS,
                  "ingested_files": FILE_COLUMNS, "rejects": REJECT_COLUMNS}
@@ -66,6 +67,8 @@ def _sql_type(col: str) -> str:
         return "TIMESTAMPTZ"
     if col in _BOOL:
         return "BOOLEAN"
+    if col in _DATE:
+        return "DATE"
     return "DOUBLE"
 
 
@@ -76,6 +79,8 @@ def open_catalog(store: Store) -> duckdb.DuckDBPyConnection:
     for name, columns in TABLE_COLUMNS.items():
         defs = ", ".join(f'"{c}" {_sql_type(c)}' + (" PRIMARY KEY" if _KEYS.get(name) == c else "") for c in columns)
         con.execute(f"CREATE TABLE IF NOT EXISTS {name} ({defs})")
+        for c in columns:  # a catalog written by an older version gains the columns added since
+            con.execute(f'ALTER TABLE {name} ADD COLUMN IF NOT EXISTS "{c}" {_sql_type(c)}')
     return con
 
 
@@ -101,7 +106,7 @@ def _arrow(name: str, df: pd.DataFrame) -> pa.Table:
     for c in TABLE_COLUMNS[name]:
         sql = _sql_type(c)
         typ = {"VARCHAR": pa.string(), "BIGINT": pa.int64(), "TIMESTAMPTZ": pa.timestamp("us", tz="UTC"),
-               "DOUBLE": pa.float64(), "BOOLEAN": pa.bool_()}[sql]
+               "DOUBLE": pa.float64(), "BOOLEAN": pa.bool_(), "DATE": pa.date32()}[sql]
         fields.append(pa.field(c, typ))
     return pa.Table.from_pandas(df[list(TABLE_COLUMNS[name])], schema=pa.schema(fields), preserve_index=False)
 

@@ -2,7 +2,8 @@
 
 Required columns: vehicle_id, platform, wheelbase_m, track_front_m,
 track_rear_m, steering_ratio, tyre_radius_m; optional:
-understeer_gradient_deg_per_g, depot, vin. A row with a problem is not
+understeer_gradient_deg_per_g, depot, vin, next_service_date (YYYY-MM-DD,
+which the inspection plan uses to combine an inspection with a service). A row with a problem is not
 loaded and is reported (file, 1-based line, problem) in ``rejects``; the
 other rows load or update the registry. A file that lacks a required column
 or cannot be read at all is a usage error.
@@ -31,7 +32,7 @@ PLAUSIBLE: dict[str, tuple[float, float]] = {
     "tyre_radius_m": (0.2, 0.7),
     "understeer_gradient_deg_per_g": (-2.0, 12.0),
 }
-_TEXT_COLUMNS = ("vehicle_id", "platform", "depot", "vin")
+_TEXT_COLUMNS = ("vehicle_id", "platform", "depot", "vin", "next_service_date")
 
 
 @dataclass
@@ -74,6 +75,11 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
             out = np.flatnonzero(~np.isnan(values) & ~((values >= lo) & (values <= hi)))
         for i in out:
             problems[i].append(f"{c} = {values[i]:g} is outside the plausible range {lo:g}..{hi:g}")
+    service = pd.Series(data["next_service_date"], dtype=object)
+    dates = pd.to_datetime(service, format="%Y-%m-%d", errors="coerce")
+    for i in np.flatnonzero((service.notna() & dates.isna()).to_numpy()):
+        problems[i].append(f"next_service_date {service[i]!r} is not a date (YYYY-MM-DD)")
+    data["next_service_date"] = dates.dt.date.where(dates.notna(), None).to_numpy(dtype=object)
     ids = data["vehicle_id"]
     first_line: dict[str, int] = {}
     for i, vid in enumerate(ids):

@@ -180,6 +180,37 @@ def test_registry_rows_load_and_bad_rows_are_reported_with_line_and_problem(tmp_
     assert summary.exit_code == 1
 
 
+def test_registry_next_service_date_is_published_as_a_date_and_a_bad_one_is_reported(tmp_path):
+    reg = tmp_path / "vehicles.csv"
+    reg.write_text(
+        "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m,next_service_date\n"
+        "V0,van-a,3.4,1.7,1.7,16,0.33,2026-04-09\n"
+        "V1,van-a,3.4,1.7,1.7,16,0.33,\n"
+        "V2,van-a,3.4,1.7,1.7,16,0.33,09/04/2026\n"
+    )
+    store = Store.open(tmp_path / "store")
+    run_ingest([_fleet(tmp_path / "logs", n_files=3)], store, vehicles_csv=reg)
+    vehicles = store.read_table("vehicles").set_index("vehicle_id")
+    assert pd.Timestamp(vehicles.loc["V0", "next_service_date"]).date() == pd.Timestamp("2026-04-09").date()
+    assert pd.isna(vehicles.loc["V1", "next_service_date"])
+    rejects = store.read_table("rejects")
+    mine = dict(zip(rejects[rejects.source_file == str(reg)].row, rejects[rejects.source_file == str(reg)].reason))
+    assert "next_service_date '09/04/2026' is not a date" in mine[4]
+
+
+def test_a_catalog_from_before_next_service_date_gains_the_column(tmp_path):
+    store = Store.open(tmp_path / "store")
+    run_ingest([_fleet(tmp_path / "logs", n_files=2)], store)
+    con = duckdb.connect(str(store.catalog_path))
+    con.execute("ALTER TABLE vehicles DROP COLUMN next_service_date")
+    con.close()
+    reg = tmp_path / "vehicles.csv"
+    reg.write_text("vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m,"
+                   "next_service_date\nV0,van-a,3.4,1.7,1.7,16,0.33,2026-04-09\n")
+    run_ingest([tmp_path / "logs"], store, vehicles_csv=reg)
+    assert store.read_table("vehicles")["next_service_date"].notna().sum() == 1
+
+
 def test_registry_without_a_required_column_is_a_user_error(tmp_path):
     reg = tmp_path / "vehicles.csv"
     reg.write_text("vehicle_id,platform\nV0,van\n")

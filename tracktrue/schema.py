@@ -51,7 +51,7 @@ REGISTRY_REQUIRED: tuple[str, ...] = (
     "steering_ratio",
     "tyre_radius_m",
 )
-REGISTRY_OPTIONAL: tuple[str, ...] = ("understeer_gradient_deg_per_g", "depot", "vin")
+REGISTRY_OPTIONAL: tuple[str, ...] = ("understeer_gradient_deg_per_g", "depot", "vin", "next_service_date")
 
 #: Catalog tables published for readers.
 TRIPS_COLUMNS: tuple[str, ...] = (
