@@ -459,6 +459,9 @@ class FleetSummary:
     seconds: float
     config: str = "tuning"
     loggers: tuple[tuple[str, int], ...] = ()  # (logger kind, vehicles)
+    #: Instants simulated (all signals of a vehicle at one moment of its simulation grid); n_samples are
+    #: the rows logged from them.
+    n_simulated: int = 0
 
     def describe(self) -> str:
         return "\n".join([
@@ -514,18 +517,18 @@ def _write_tables(out: Path, plan: FleetPlan, fleet_rate_hz: float) -> None:
 
 
 def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: float, analog: bool,
-                   module: WheelModule) -> tuple[int, int, int]:
-    """(samples, bytes, files) of one vehicle's trips; a unit of work for a worker process.
+                   module: WheelModule) -> tuple[int, int, int, int]:
+    """(samples, bytes, files, instants simulated) of one vehicle's trips; a unit of work for a worker process.
 
     The trips go through the simulation in groups of about _GROUP_SAMPLES
     samples (the arrays of a group stay near the processor's cache) and
     through the writer in one call.
     """
     if not trips:
-        return 0, 0, 0
+        return 0, 0, 0, 0
     v = trips[0].vehicle
     folder = out / "logs" / v.vehicle_id
-    n_samples = n_bytes = 0
+    n_samples = n_bytes = n_simulated = 0
     for group in _groups(trips, grid_rate_hz(v.logger, fleet_rate_hz)):
         sims = simulate_trips(v.spec, v.health, [t.condition for t in group], vehicle_id=v.vehicle_id,
                               starts=[t.start for t in group], drives=[t.drive for t in group],
@@ -539,7 +542,8 @@ def _write_vehicle(out: Path, trips: list[TripPlan], seed: int, fleet_rate_hz: f
                                 analog=analog, read_lag_ms=sims.read_lag_ms, wheel_step_kph=v.logger.wheel_step_kph)
         n_samples += sims.n_samples
         n_bytes += sum(sizes)
-    return n_samples, n_bytes, len(trips)
+        n_simulated += sims.n_simulated
+    return n_samples, n_bytes, len(trips), n_simulated
 
 
 #: Samples simulated in one pass (a group of whole trips).
@@ -609,13 +613,14 @@ def generate_fleet(out: Path, n_vehicles: int, days: int, seed: int, rate_hz: fl
                 bar.update()
         results += [future.result() for future in futures if not future.cancelled()]
     bar.close()
-    n_samples, n_bytes, n_files = (sum(r[i] for r in results) for i in range(3))
+    n_samples, n_bytes, n_files, n_simulated = (sum(r[i] for r in results) for i in range(4))
     _write_tables(out, plan, rate_hz)
     faults = [v.fault.name for v in plan.vehicles if v.fault and parse_fault(v.fault.name).is_sensor_fault]
     summary = FleetSummary(out, FLEET_NAME, n_vehicles, days, n_files, n_samples, n_bytes, tuple(faults),
                            sum(d is not None for d in plan.lamp_dates.values()),
                            sum(1 for v in plan.vehicles if v.fault and not parse_fault(v.fault.name).is_sensor_fault),
                            time.perf_counter() - t0, plan.config.name,
-                           tuple((kind, sum(v.logger.name == kind for v in plan.vehicles)) for kind in LOGGER_KINDS))
+                           tuple((kind, sum(v.logger.name == kind for v in plan.vehicles)) for kind in LOGGER_KINDS),
+                           n_simulated)
     log.info("synthetic fleet written: %s files, %s samples", n_files, n_samples)
     return summary

@@ -77,6 +77,8 @@ class SimulatedTrips:
     columns: dict[str, np.ndarray]
     rate_hz: float
     read_lag_ms: dict[str, np.ndarray] | None = None
+    #: Instants simulated on the grid the rows were taken from (a polled or telematics logger writes fewer).
+    n_simulated: int = 0
 
     @property
     def n_samples(self) -> int:
@@ -134,7 +136,7 @@ def simulate_trips(spec: Platform, health: SensorHealth, conds: Sequence[TripCon
             esc |= t >= cond.esc_off_from_s
     signals["dtc"] = dtc
     return SimulatedTrips(vehicle_id, list(starts), rows.n_rows, rows.time_ms, rows.gather(signals), row_rate,
-                          rows.read_lag_ms)
+                          rows.read_lag_ms, trips.total)
 
 
 def simulate_trip(spec: Platform, health: SensorHealth, cond: TripCondition, *, vehicle_id: str,
