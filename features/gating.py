@@ -70,7 +70,7 @@ import numpy as np
 
 from features.accel import LAT_MIN_S
 from features.row import FeatureRow
-from features.signals import SMOOTH_S, TripArrays, median_of_four
+from features.signals import SMOOTH_S, TripArrays, median
 from features.spec import VehicleSpec
 from features.wheels import AXLE_AGREE_RADPS, JITTER_HIGHPASS_S, JITTER_MAX_QUANT_PCT
 from features.windows import DROPOUT_ZERO_MPS, STRAIGHT_YAW_RADPS
@@ -258,7 +258,7 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
     moving = speed >= MOVING_MPS
     figures = signal_figures(trip, moving)
     moving_s = float(trip.dt[moving].sum())
-    gates = feature_gates(spec, float(np.median(speed[moving])) if moving.any() else FALLBACK_SPEED_MPS)
+    gates = feature_gates(spec, median(speed[moving]) if moving.any() else FALLBACK_SPEED_MPS)
     for name, checks in gates.items():
         if name not in row.values:
             continue
@@ -277,6 +277,5 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
 
 def _moving_speed(trip: TripArrays) -> np.ndarray:
     """The trip's speed: median of four wheels, else the vehicle speed; NaN read as standing."""
-    speed = median_of_four(trip.wheels) if any(trip.has(c) for c in WHEEL_SPEED_COLUMNS) \
-        else trip.signals["vehicle_speed"]
+    speed = trip.speed if any(trip.has(c) for c in WHEEL_SPEED_COLUMNS) else trip.signals["vehicle_speed"]
     return np.where(np.isfinite(speed), speed, 0.0)
