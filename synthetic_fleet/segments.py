@@ -86,12 +86,16 @@ class Segments:
             left = width // 2 + 1  # samples held before a segment (and width - left after it)
             padded = Segments.of(self.lengths + width)
             source = self.starts[padded.owner] + np.clip(padded.local - left, 0, self.lengths[padded.owner] - 1)
-            self._plans[key] = source, padded.starts, padded.starts[self.owner] + self.local
-        source, zeroed, at = self._plans[key]
+            at = padded.starts[self.owner] + self.local
+            self._plans[key] = source, padded.starts, at, at + width
+        source, zeroed, at, window_end = self._plans[key]
         values = x[source]
         values[zeroed] = 0.0  # so that each window's sum is a difference of running sums
-        c = np.cumsum(values)
-        return (c[at + width] - c[at]) / width
+        c = np.cumsum(values, out=values)  # x is floating point: summed in place
+        out = c[window_end]
+        out -= c[at]
+        out /= width
+        return out
 
     def coarse(self, step: int) -> "Segments":
         """Every ``step``-th sample of each segment (its first, then every step after)."""
@@ -104,6 +108,9 @@ class Segments:
         if key not in self._plans:
             i, frac = np.divmod(self.local, step)
             at = coarse.starts[self.owner] + i
-            self._plans[key] = coarse, at, np.minimum(at + 1, coarse.ends[self.owner] - 1), frac / step
-        _, at, following, frac = self._plans[key]
-        return coarse_values[at] * (1.0 - frac) + coarse_values[following] * frac
+            frac = frac / step
+            self._plans[key] = coarse, at, np.minimum(at + 1, coarse.ends[self.owner] - 1), 1.0 - frac, frac
+        _, at, following, rest, frac = self._plans[key]
+        out = coarse_values[at] * rest
+        out += coarse_values[following] * frac
+        return out

@@ -49,7 +49,8 @@ def wheel_angles(omega_rps: np.ndarray, trips: Segments, rate_hz: float, phase_r
     per_trip = angle[trips.ends - 1] + omega_rps[trips.ends - 1] / rate_hz - at_start
     turns = np.ceil(per_trip / (2 * np.pi)) + 1.0  # room for each segment's phase
     base = 2 * np.pi * (np.cumsum(turns) - turns) + phase_rad
-    angle += trips.spread(base - at_start)
+    for a, b, shift in zip(trips.starts.tolist(), trips.ends.tolist(), (base - at_start).tolist()):
+        angle[a:b] += shift  # per segment, in place (no array of the shifts as large as the angles)
     return angle
 
 
