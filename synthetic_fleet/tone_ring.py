@@ -75,22 +75,31 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
     run_start_s = runs.starts / rate_hz
     owner = runs.owner
-    held = np.empty_like(omega)  # the speed over the grid step before each sample (none before a trip)
-    held[1:] = omega[:-1]
-    held[runs.starts] = 0.0
+    run_starts = np.zeros(total, dtype=bool)
+    run_starts[runs.starts] = True
     shape = (wheels, n) if at is None else (len(at),)
     out = np.empty(total if at is None else len(at))
     # In blocks that stay in the processor's cache with their dozen temporaries.
     for lo in range(0, len(out), _BLOCK):
         block = slice(lo, lo + _BLOCK)
         where = block if at is None else at[block]
-        out[block] = _published(t_grid[where], owner[where], held[where], angle[where], angle, t_grid, run_start_s,
+        # the speed over the grid step before each sample (none before a trip)
+        held = omega[np.arange(lo, min(lo + _BLOCK, total)) - 1] if at is None else omega[where - 1]
+        held[run_starts[where]] = 0.0
+        out[block] = _published(t_grid[where], owner[where], held, angle[where], angle, t_grid, run_start_s,
                                 rate_hz, radius_m, n_teeth, module, tooth_error, missing)
     return out.reshape(shape)
 
 
 #: Samples per block of module_speeds.
 _BLOCK = 16384
+
+
+def _edge_and_tooth(edge: np.ndarray, n_teeth: int) -> tuple[np.ndarray, np.ndarray]:
+    """Edge numbers (whole numbers as floats) and their teeth (edge mod N) as integers: the remainder
+    in floating point (exact for whole numbers below 2**52 / N), which numpy vectorises and an int64
+    remainder it does not."""
+    return edge.astype(np.int64), (edge - n_teeth * np.floor(edge / n_teeth)).astype(np.int64)
 
 
 def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray, angle: np.ndarray,
@@ -121,9 +130,8 @@ def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray
     row = owner * n_teeth
     error = tooth_error.reshape(-1)
 
-    last = np.floor(b / pitch).astype(np.int64)  # the last edge at or before the tick
-    first = np.ceil(a / pitch).astype(np.int64)  # the first at or after the window's start
-    k_last, k_first = last % n_teeth, first % n_teeth
+    last, k_last = _edge_and_tooth(np.floor(b / pitch), n_teeth)  # the last edge at or before the tick
+    first, k_first = _edge_and_tooth(np.ceil(a / pitch), n_teeth)  # the first at or after the window's start
     counted = last - first + 1
     if missing.any():
         gone = missing.reshape(-1)
