@@ -149,11 +149,17 @@ def main() -> int:
     for c in sorted(set(args.configs) - set(configs)):
         print(f"note: the simulator has no {c} configuration (synthetic_fleet.config.HELD_OUT): skipped")
     reports: dict[tuple[str, bool], list] = {(c, v): [] for c in configs for v in variants}
+    failed = []
     for config in configs:
         for seed in args.seeds:
             print(f"\n===== seed {seed}, {config} configuration: {args.vehicles} vehicles × {args.days} days =====",
                   flush=True)
-            out, times = build_chain(args.work, seed, args.vehicles, args.days, config)
+            try:
+                out, times = build_chain(args.work, seed, args.vehicles, args.days, config)
+            except Exception as exc:  # one broken fleet must not lose the other seeds' figures
+                print(f"seed {seed}, {config} configuration: the chain failed ({exc!r}); not measured", flush=True)
+                failed.append((seed, config))
+                continue
             for with_service in variants:
                 print(f"--- {'with' if with_service else 'without'} published service events", flush=True)
                 report, t2 = evaluate_seed(out, with_service)
@@ -169,7 +175,9 @@ def main() -> int:
             for kind in kinds:
                 _print_pooled(f"logger kind {kind} — {label}, {name}",
                               [r.by_logger[kind] for r in chosen if kind in r.by_logger], False)
-    return 0
+    if failed:
+        print("\nnot measured (the chain failed): " + ", ".join(f"seed {s} {c}" for s, c in failed))
+    return 1 if failed else 0
 
 
 if __name__ == "__main__":
