@@ -160,7 +160,7 @@ def signal_figures(trip: TripArrays, moving: np.ndarray) -> dict[str, Figures]:
         if trip.has(name):
             values = trip.signal(name)
             rate, stale = fresh_rate(values, moving, seconds)
-            row_hz = np.count_nonzero(np.isfinite(values)) / duration if duration > 0 else math.nan
+            row_hz = trip.present[name] / duration if duration > 0 else math.nan
             out[name] = Figures(trip.resolution[name], rate, stale, row_hz)
     return out
 

@@ -42,6 +42,7 @@ class TripArrays:
     resolution: Mapping[str, float] = field(default_factory=dict)  #: smallest step per signal
     logged: frozenset[str] = frozenset()  #: signals with at least one sample present
     missing: Mapping[str, float] = field(default_factory=dict)  #: share of missing samples per signal (and brake)
+    present: Mapping[str, int] = field(default_factory=dict)  #: number of samples present per signal (and brake)
     _memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     def smoothed(self, name: str) -> np.ndarray:
@@ -118,7 +119,7 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
     resolution = {c: smallest_step(every[c] if present[c] == t.size else every[c][finite[c]])
                   for c in NUMERIC_SIGNALS}
     return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
-                      gap_after=gap_after, resolution=resolution, logged=logged, missing=missing)
+                      gap_after=gap_after, resolution=resolution, logged=logged, missing=missing, present=present)
 
 
 def smallest_step(values: np.ndarray) -> float:
@@ -134,10 +135,7 @@ def smallest_step(values: np.ndarray) -> float:
     np.abs(steps, out=steps)
     # rounding is monotonic, so the smallest step that survives rounding is the
     # rounded smallest step above half a unit: no need to round every step
-    small = steps < 5e-10
-    candidates = steps.copy() if small.any() else steps
-    candidates[small] = np.inf
-    smallest = float(candidates.min()) if candidates.size else np.inf
+    smallest = float(np.min(steps, where=steps >= 5e-10, initial=np.inf))
     if not np.isfinite(smallest):
         return np.nan
     smallest = float(np.round(smallest, 9))
@@ -218,6 +216,19 @@ def _window_share(n: int, width: int) -> np.ndarray:
     return share
 
 
+def widen(mask: np.ndarray, half: int) -> np.ndarray:
+    """True within ``half`` samples of any True sample of a 1-D ``mask`` (a dilation).
+
+    From a running count of True samples (exact integers), so it costs one
+    cumulative sum rather than a moving mean of the mask.
+    """
+    n = mask.size
+    count = np.zeros(n + 2 * half + 1, dtype=np.int32)
+    np.cumsum(mask, out=count[half + 1: half + 1 + n])
+    count[half + 1 + n:] = count[half + n]
+    return count[2 * half + 1:] > count[:n]
+
+
 def moving_std(x: np.ndarray, width: int) -> np.ndarray:
     """Centred moving standard deviation (population), NaN-skipping."""
     x = np.asarray(x)
@@ -237,7 +248,7 @@ def moving_std_at(x: np.ndarray, mask: np.ndarray, width: int) -> np.ndarray:
     out = np.full(x.shape, np.nan)
     if not mask.any():
         return out
-    near = moving_mean(mask.astype(np.float64), 2 * width + 1) > 0  # widened by a whole window: margin to spare
+    near = widen(mask, width)  # widened by a whole window: margin to spare
     out[near] = moving_std(x[near], width)
     out[~mask] = np.nan
     return out
@@ -247,10 +258,9 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
     """True within ``half_width`` samples of a time gap (derivatives are unreliable there)."""
     if not trip.gap_after.any():
         return np.zeros(trip.n, dtype=bool)
-    marks = trip.gap_after.astype(float)
-    # a gap after sample i touches samples i and i+1
-    marks[1:] = np.maximum(marks[1:], trip.gap_after[:-1])
-    return moving_mean(marks, 2 * half_width + 1) > 0
+    marks = trip.gap_after.copy()
+    marks[1:] |= trip.gap_after[:-1]  # a gap after sample i touches samples i and i+1
+    return widen(marks, half_width)
 
 
 def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:

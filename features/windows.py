@@ -30,6 +30,7 @@ from features.signals import (
     moving_std_at,
     second_smallest_of_four,
     smooth_derivative,
+    widen,
     window_samples,
 )
 from features.spec import VehicleSpec
@@ -105,7 +106,7 @@ def _rolling_everywhere(trip: TripArrays) -> np.ndarray:
         any_zero = ~np.all(trip.wheels > DROPOUT_ZERO_MPS, axis=0)
     if not any_zero.any():
         return ~any_zero
-    return ~(moving_mean(any_zero.astype(float), window_samples(2 * SMOOTH_S, trip.rate_hz)) > 0)
+    return ~widen(any_zero, window_samples(2 * SMOOTH_S, trip.rate_hz) // 2)
 
 
 def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str | None]:

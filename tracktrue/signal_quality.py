@@ -56,8 +56,10 @@ def fresh_rate(values: np.ndarray, moving: np.ndarray, seconds: float) -> tuple[
         x, counted = values[idx], moving[idx[1:]]  # each known value against the previous known one
     if seconds <= 0 or x.size < 2:
         return float("nan"), float("nan")
-    if not counted.any():
+    n_counted = int(np.count_nonzero(counted))
+    if not n_counted:
         return float("nan"), float("nan")
-    repeat = (x[1:] == x[:-1])[counted]
-    fresh = int(repeat.size - np.count_nonzero(repeat))
-    return fresh / seconds, float(repeat.mean())
+    repeat = x[1:] == x[:-1]
+    repeat &= counted  # counts, not a selection: no copy of the counted repeats
+    n_repeat = int(np.count_nonzero(repeat))
+    return (n_counted - n_repeat) / seconds, n_repeat / n_counted
