@@ -90,6 +90,12 @@ def _fields(style: RoadStyle) -> dict[str, np.ndarray]:
     return {f: np.asarray(getattr(style, f), dtype=float) for f in style.__dataclass_fields__}
 
 
+@functools.lru_cache(maxsize=None)
+def _mean_leg_s(style: RoadStyle) -> float:
+    """A leg's mean duration on this kind of road, about (seconds)."""
+    return np.mean(style.cruise_s) + style.stop_prob * np.mean(style.stop_s) + 15.0
+
+
 def _per_leg(styles: list[RoadStyle], counts: np.ndarray, name: str) -> np.ndarray:
     """A RoadStyle field repeated over each section's legs; ranges give shape (2, n_legs)."""
     values = np.array([_fields(st)[name] for st in styles])
@@ -109,7 +115,7 @@ def _legs(sections: list[list[RoadStyle]], budgets_s: list[np.ndarray], v0: np.n
     styles = [st for trip in sections for st in trip]
     section_trip = np.repeat(np.arange(len(sections)), [len(trip) for trip in sections])
     budgets = np.concatenate(budgets_s)
-    mean_leg = np.array([np.mean(st.cruise_s) + st.stop_prob * np.mean(st.stop_s) + 15.0 for st in styles])
+    mean_leg = np.array([_mean_leg_s(st) for st in styles])
     counts = (3 * budgets / mean_leg).astype(int) + 5
     legs = Segments.of(np.bincount(section_trip, weights=counts, minlength=len(sections)).astype(np.int64))
     n = legs.total
@@ -263,7 +269,11 @@ def drive_traces(drives: list[str], durations_s: list[float], rate_hz: float, rn
     # second: only its slow part matters).
     width = max(int(round(8.0)), 1)
     slow = noise_points.boxcar(np.concatenate(white), width) * np.sqrt(width)
-    v = v * (1.0 + 0.012 * trips.upsample(slow, noise_points, step) * cruising)
+    wander = trips.upsample(slow, noise_points, step)  # the speed's slow wander about the drawn profile
+    wander *= 0.012
+    wander *= cruising
+    wander += 1.0
+    v *= wander
     v_width = max(int(round(SPEED_SMOOTHING_S / dt)), 1)
     v = np.maximum(trips.boxcar(trips.boxcar(v, v_width), v_width), 0.0)
     v[v < 0.02] = 0.0
@@ -272,11 +282,14 @@ def drive_traces(drives: list[str], durations_s: list[float], rate_hz: float, rn
     kappa = np.clip(kappa, -limit, limit)
     accel = trips.gradient(v, dt)
 
-    dist = trips.cumsum(v) * dt
+    dist = trips.cumsum(v)
+    dist *= dt
     points = trips.coarse(step)
     at = trips.starts[points.owner] + points.local * step
     coarse_grade = _road_profile(dist[at], points.owner, np.array(grade_waves), 0.0)
-    mean_grade = trips.sums(trips.upsample(coarse_grade, points, step) * v) / np.maximum(trips.sums(v), 1e-9)
+    weighted = trips.upsample(coarse_grade, points, step)
+    weighted *= v
+    mean_grade = trips.sums(weighted) / np.maximum(trips.sums(v), 1e-9)
     coarse_grade -= points.spread(mean_grade)
     coarse_bank = _road_profile(dist[at], points.owner, np.array(bank_waves), 0.008)
     # Angles from slopes on the coarse grid: over one step the profile is nearly straight, so the

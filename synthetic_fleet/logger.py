@@ -175,6 +175,8 @@ def plan_rows(t_s: np.ndarray, trips: Segments, grid_hz: float, profile: LoggerP
                                    for j, xs in enumerate(zip(*missing)))
     lags = np.concatenate(lags, axis=1) if polled else None  # (signals, rows)
     sources, empty, read_lag_ms = {}, {}, {} if polled else None
+    opens_trip = np.zeros(len(rows), dtype=bool)  # a trip's first row has no previous reading to repeat
+    opens_trip[out.starts] = True
     for i, name in enumerate(names):
         source = rows - lags[i] if polled else rows
         if polled:
@@ -182,7 +184,7 @@ def plan_rows(t_s: np.ndarray, trips: Segments, grid_hz: float, profile: LoggerP
         if name in NUMERIC_SIGNALS:
             j = numeric.index(name)
             struck = stale_row[stale_signal == j]
-            struck = struck[~np.isin(struck, out.starts)]
+            struck = struck[~opens_trip[struck]]
             if len(struck):
                 source = source.copy()
                 source[struck] = source[struck - 1]  # the previous row's reading, again

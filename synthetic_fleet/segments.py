@@ -57,14 +57,20 @@ class Segments:
 
     def sums(self, x: np.ndarray) -> np.ndarray:
         """The sum of ``x`` over each segment (0 for an empty one)."""
-        c = np.concatenate([[0.0], np.cumsum(x)])
-        return c[self.ends] - c[self.starts]
+        c = np.cumsum(x)
+
+        def before(i: np.ndarray) -> np.ndarray:  # the running sum before sample i
+            return np.where(i > 0, c[np.maximum(i - 1, 0)], 0.0) if len(c) else np.zeros(len(i))
+
+        return before(self.ends) - before(self.starts)
 
     def cumsum(self, x: np.ndarray) -> np.ndarray:
         """Running sum of ``x`` restarting at each segment."""
         c = np.cumsum(x)
         before = np.concatenate([[0.0], c])[self.starts]
-        return c - self.spread(before)
+        for a, b, offset in zip(self.starts.tolist(), self.ends.tolist(), before.tolist()):
+            c[a:b] -= offset  # per segment, in place
+        return c
 
     def gradient(self, x: np.ndarray, dt: float) -> np.ndarray:
         """np.gradient within each segment (central inside, one-sided at its ends; 0 for one sample)."""

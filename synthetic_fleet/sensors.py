@@ -150,7 +150,8 @@ def _road_input(trace: DriveTrace, spec: Platform, rough_rngs: list[np.random.Ge
         return None
     trips = trace.trips
     dt = 1.0 / trace.rate_hz
-    dist = trips.cumsum(trace.speed_mps) * dt
+    dist = trips.cumsum(trace.speed_mps)
+    dist *= dt
     ripple = np.zeros((4, trips.total), np.float32)
     for cond, rng, a, b in zip(conds, rough_rngs, trips.starts, trips.ends):
         if not cond.rough_road:
