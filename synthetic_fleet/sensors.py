@@ -206,25 +206,33 @@ def _wheel_signals(trace: DriveTrace, spec: Platform, health: SensorHealth, cond
     front, rear = BRAKE_SLIP_PER_G
     slip = np.minimum(a_g, 0.0)[None, :] * np.array([front, front, rear, rear])[:, None]
     driven = [0, 1] if spec.driven_axle == "front" else [2, 3]
-    slip[driven] += np.maximum(a_g, 0.0) * TRACTION_SLIP_PER_G
+    traction = np.maximum(a_g, 0.0) * TRACTION_SLIP_PER_G
+    for wheel in driven:
+        slip[wheel] += traction
     axle_load = np.array([[0.3 * c.load, 0.3 * c.load, c.load + 0.6 * c.towing, c.load + 0.6 * c.towing]
                           for c in conds]).T
     radius = np.array([health.wheel_radius_factor * c.tyre_factor * _tyre_fault_factor(c, health.fault_sign)
                        for c in conds]).T * (1.0 - LOADED_RADIUS_FRAC * np.minimum(axle_load, 1.5))
     # The wheel turns at its speed over its rolling radius; the module converts the
     # tooth rate with the nominal radius, so a smaller tyre (or more slip) reads faster.
-    true_speed = centre * (1.0 + slip) / trips.spread(radius)
+    true_speed = slip  # (4, n) arrays are large: worked on in place
+    true_speed += 1.0
+    true_speed *= centre
+    for k, (a, b) in enumerate(zip(trips.starts.tolist(), trips.ends.tolist())):
+        true_speed[:, a:b] /= radius[:, k:k + 1]
     ripple = _road_input(trace, spec, rough_rngs, conds)
     if ripple is not None:
         true_speed *= 1.0 + ripple
     phases = np.array([rng.uniform(0.0, 2 * np.pi, 4) for rng in ring_rngs]).T  # (4, trips)
     errors, missing = (np.stack(x, axis=1) for x in zip(*(_tone_rings(spec, health, c) for c in conds)))
-    args = (true_speed / spec.tyre_radius_m, trips, trace.rate_hz, spec.tyre_radius_m, spec.tone_ring_teeth, module,
+    omega_rps = true_speed
+    omega_rps /= spec.tyre_radius_m
+    args = (omega_rps, trips, trace.rate_hz, spec.tyre_radius_m, spec.tone_ring_teeth, module,
             phases, errors, missing)
     if wheel_at is None:
         wheels = module_speeds(*args)
     else:
-        wheels = np.full_like(true_speed, np.nan)
+        wheels = np.full_like(omega_rps, np.nan)
         at = np.concatenate([i * trips.total + idx for i, idx in enumerate(wheel_at)])
         wheels.flat[at] = module_speeds(*args, at=at)
     cutoff_mps = CUTOFF_MPS[spec.wheel_sensor_kind]
