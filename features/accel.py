@@ -20,6 +20,7 @@ from features.signals import (
     seconds,
     smooth_derivative,
     three_cornered_hat,
+    widen,
     window_samples,
 )
 from features.wheels import WheelReference, steady_reference_window, wheel_comparison_window
@@ -111,14 +112,18 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
     if usable is None:
         return
     width = window_samples(WHEEL_ACCEL_HIGHPASS_S, trip.rate_hz)
+    # only the usable samples' high-pass windows are filtered (usable runs
+    # widened by half a window, joined): each window stays inside its run
+    near = widen(usable, width // 2)
+    kept = usable[near]
 
     wheels = calibrated_or_raw(trip, ref)
-    sources = np.empty((5, trip.n))
-    sources[:4] = smooth_derivative(wheels, trip)
-    sources[4] = trip.signals["accel_long"]
-    sources[:, ~usable] = np.nan
+    sources = np.empty((5, kept.size))
+    sources[:4] = np.compress(near, smooth_derivative(wheels, trip), axis=1)  # column picks: faster than [:, near]
+    sources[4] = trip.signals["accel_long"][near]
+    np.copyto(sources, np.nan, where=~kept)
     sources -= moving_mean(sources, width)  # high-passed, all five at once
-    sources = sources[:, np.isfinite(sources).all(axis=0)]
+    sources = np.compress(np.isfinite(sources).all(axis=0), sources, axis=1)
     if sources.shape[1] < 2:
         row.nan_all(names, "too_little_rolling")
         return

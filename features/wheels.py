@@ -27,6 +27,7 @@ from features.signals import (
     SMOOTH_S,
     seconds,
     three_cornered_hat,
+    widen,
     window_samples,
 )
 from features.spec import VehicleSpec
@@ -94,7 +95,7 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
     deviation -= 1.0
     sane = np.all(np.abs(deviation, out=deviation) < GLITCH_FRAC, axis=0)
     every = sane.all()
-    kept = speeds if every else speeds[:, sane]
+    kept = speeds if every else np.compress(sane, speeds, axis=1)  # column picks: faster than [:, sane]
     reference = kept.mean(axis=0) if against == "mean" else median if every else median[sane]
     return kept.sum(axis=1) / reference.sum()
 
@@ -126,7 +127,8 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         reason = windows.straight_reason or "no_straight_cruise"
         return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, nan,
                               reason)
-    offset = distance_ratios(trip.wheels[:, windows.cruise], "median", windows.speed[windows.cruise]) - 1.0
+    cruise = np.compress(windows.cruise, trip.wheels, axis=1)
+    offset = distance_ratios(cruise, "median", windows.speed[windows.cruise]) - 1.0
     calibrated = trip.wheels / (1.0 + offset)[:, None]
     rl, rr = calibrated[2], calibrated[3]
     reason = spec.missing("track_rear_m", "track_front_m")
@@ -174,10 +176,10 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
             usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & windows.rolling
                       & (np.abs(yaw * speed) < RATIO_MAX_LAT_MPS2))
         factors = wheel_path_factors(curvature[usable], spec.track_front_m, spec.track_rear_m, spec.wheelbase_m)
-        u = trip.wheels[:, usable] / factors
+        u = np.compress(usable, trip.wheels, axis=1) / factors
     else:
         usable = windows.cruise
-        u = trip.wheels[:, usable]
+        u = np.compress(usable, trip.wheels, axis=1)
     if seconds(usable, trip) < RATIO_MIN_S:
         row.nan_all(names, "too_little_rolling")
         return
@@ -205,10 +207,12 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         return
     typical_speed = median(windows.speed[usable])
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
+    near = widen(usable, width // 2)  # the usable samples' filter windows, joined (each inside its run)
+    kept = usable[near]
     with np.errstate(invalid="ignore", divide="ignore"):
-        log_speed = np.log(trip.wheels, out=np.full(trip.wheels.shape, np.nan), where=usable)
+        log_speed = np.log(np.compress(near, trip.wheels, axis=1), out=np.full((4, kept.size), np.nan), where=kept)
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
-    fast = (log_speed - moving_mean(log_speed, width))[:, usable]
+    fast = np.compress(kept, log_speed - moving_mean(log_speed, width), axis=1)
     first, second = np.array(WHEEL_PAIRS).T
     pair_var = dict(zip(WHEEL_PAIRS, robust_spread(fast[first] - fast[second]) ** 2))
     own_var = three_cornered_hat(pair_var, 4)
