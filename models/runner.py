@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 import sklearn
 
-from models.lamps import has_lamp_summary, lamp_events, lamp_summary_from_features, read_trip_lamps
+from models.lamps import lamp_events, trip_lamps
 from models.peers import peer_bands
 from models.scorer import FleetScorer
 from models.stability import StabilityRules, history_rows, stabilise
@@ -97,10 +97,7 @@ def score_fleet(store: Store, as_of: dt.date | None, scorer: FleetScorer | None 
     scorer.fit(tf, service_events=events)
     ts = scorer.score_trips(tf)
     drift = scorer.drift(tf, ts)
-    if has_lamp_summary(tf):
-        lamps, source = lamp_summary_from_features(tf), "trip_features"
-    else:
-        lamps, source = read_trip_lamps(store, tf["trip_id"]), "sample store (trip_features has no lamp summary)"
+    lamps, source = trip_lamps(store, tf)
     lamp_trips = lamp_events(ts, lamps)
     status = scorer.rank(scorer.attach_raw(ts, tf), drift, lamp_trips, vehicles=vehicles, as_of=as_of)
     return ScoredFleet(scorer, tf, ts, drift, status, lamp_trips, as_of, source)

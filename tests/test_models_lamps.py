@@ -12,12 +12,14 @@ from test_models_fixtures import make_trip_features
 from tracktrue.store import Store
 
 
-def _trips(states):
+def _trips(states, at_start=None):
     t0 = pd.Timestamp("2026-03-02", tz="UTC")
     trips = pd.DataFrame({"vehicle_id": "V1", "trip_id": [f"t{i}" for i in range(len(states))],
                           "start_time": [t0 + pd.Timedelta(hours=4 * i) for i in range(len(states))]})
     lamps = pd.DataFrame({"trip_id": trips["trip_id"], "lamp_abs_on": [s[0] for s in states],
                           "lamp_esc_on": [s[1] for s in states], "dtc": [s[2] for s in states]})
+    if at_start is not None:
+        lamps["lamp_at_start"] = at_start
     return lamp_events(trips, lamps)
 
 
@@ -72,3 +74,12 @@ def test_an_intermittent_code_keeps_the_vehicle_lamp_lit_after_the_lamp_went_out
     row = lamp_fleet.loc["V002"]
     assert row["status"] == "lamp_lit"
     assert "TT-W31 stored" in row["evidence"] and "lamp out" in row["evidence"]
+
+
+def test_interventions_on_consecutive_slippery_trips_are_no_event_a_lamp_relit_at_key_on_is():
+    # the ESC lamp flashes mid-trip on three trips in a row (never lit at a trip's first sample)
+    flashes = _trips([(False, True, "")] * 3, at_start=[False, False, False])
+    assert not flashes["lamp_event"].any()
+    # a warning lamp is relit at key-on: lit from the first sample of the trip after a lit trip
+    fault = _trips([(False, False, ""), (True, True, ""), (True, True, "")], at_start=[False, False, True])
+    assert fault["lamp_event"].tolist() == [False, False, True]
