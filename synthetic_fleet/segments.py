@@ -1,8 +1,8 @@
 """Several trips' samples one after the other, and the per-trip array operations on them.
 
 A vehicle's trips are simulated in one pass: every signal is one array of all
-the trips' samples, so a trip costs no more array calls than a sample's worth
-of work. Smoothing, derivatives and running sums must not reach across a
+the trips' samples, so a trip costs a few array calls (slices per trip where
+smoothing and interpolation lay a trip out), never one per sample. Smoothing, derivatives and running sums must not reach across a
 trip's ends; these helpers treat each trip (segment) as if it stood alone.
 Sums run over the whole array, so a trip's values agree with its stand-alone
 values to rounding (about 1e-16 of the running sum), and are the same
@@ -12,7 +12,7 @@ for the same trips whatever else runs.
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -22,8 +22,6 @@ class Segments:
     """Consecutive segments of ``lengths`` samples each."""
 
     lengths: np.ndarray
-    #: Index arrays of the smoothing and interpolation already asked for (several signals share them).
-    _plans: dict = field(default_factory=dict, repr=False)
 
     @classmethod
     def of(cls, lengths) -> "Segments":
@@ -84,22 +82,25 @@ class Segments:
         return g
 
     def boxcar(self, x: np.ndarray, width: int) -> np.ndarray:
-        """Centred moving average over ``width`` samples within each segment, its edge values held."""
+        """Centred moving average over ``width`` samples within each segment, its edge values held.
+
+        Each segment is laid out with its edge values held for ``width`` samples around it (slices, no
+        per-sample indices); one running sum over all of them (x is floating point: summed in place)."""
         if width <= 1 or self.total == 0:
             return x
-        key = ("boxcar", width)
-        if key not in self._plans:
-            left = width // 2 + 1  # samples held before a segment (and width - left after it)
-            padded = Segments.of(self.lengths + width)
-            source = self.starts[padded.owner] + np.clip(padded.local - left, 0, self.lengths[padded.owner] - 1)
-            at = padded.starts[self.owner] + self.local
-            self._plans[key] = source, padded.starts, at, at + width
-        source, zeroed, at, window_end = self._plans[key]
-        values = x[source]
-        values[zeroed] = 0.0  # so that each window's sum is a difference of running sums
-        c = np.cumsum(values, out=values)  # x is floating point: summed in place
-        out = c[window_end]
-        out -= c[at]
+        left = width // 2 + 1  # samples held before a segment (and width - left after it)
+        padded = Segments.of(self.lengths + width)
+        values = np.empty(padded.total, x.dtype)
+        bounds = zip(self.starts.tolist(), self.lengths.tolist(), padded.starts.tolist())
+        for a, n, p in bounds:
+            values[p:p + left] = x[a if n else a - 1]
+            values[p + left:p + left + n] = x[a:a + n]
+            values[p + left + n:p + n + width] = x[a + n - 1]
+            values[p] = 0.0  # so that each window's sum is a difference of running sums
+        c = np.cumsum(values, out=values)
+        out = np.empty_like(x, dtype=c.dtype)
+        for a, n, p in zip(self.starts.tolist(), self.lengths.tolist(), padded.starts.tolist()):
+            np.subtract(c[p + width:p + width + n], c[p:p + n], out=out[a:a + n])
         out /= width
         return out
 
@@ -109,14 +110,17 @@ class Segments:
 
     def upsample(self, coarse_values: np.ndarray, coarse: "Segments", step: int) -> np.ndarray:
         """Linear interpolation of values given at every ``step``-th sample of each segment (``coarse``
-        segments, at least as many values as coarse points) onto all samples; the last value is held."""
-        key = ("upsample", id(coarse), step)
-        if key not in self._plans:
-            i, frac = np.divmod(self.local, step)
-            at = coarse.starts[self.owner] + i
-            frac = frac / step
-            self._plans[key] = coarse, at, np.minimum(at + 1, coarse.ends[self.owner] - 1), 1.0 - frac, frac
-        _, at, following, rest, frac = self._plans[key]
-        out = coarse_values[at] * rest
-        out += coarse_values[following] * frac
+        segments, at least as many values as coarse points) onto all samples; the last value is held.
+
+        Per segment, a (coarse points, step) table of the weighted neighbours (no per-sample indices)."""
+        frac = np.arange(step) / step
+        rest = 1.0 - frac
+        out = np.empty(self.total, np.result_type(coarse_values, frac))
+        for a, n, first, end in zip(self.starts.tolist(), self.lengths.tolist(), coarse.starts.tolist(),
+                                    coarse.ends.tolist()):
+            m = -(-n // step)  # the coarse points at or before this segment's samples
+            following = coarse_values[np.minimum(np.arange(first + 1, first + m + 1), end - 1)]
+            table = coarse_values[first:first + m, None] * rest
+            table += following[:, None] * frac
+            out[a:a + n] = table.ravel()[:n]
         return out
