@@ -413,9 +413,10 @@ def write_trips_csv(paths: list[Path], style: ExportStyle, *, vehicle_id: str, v
                              wheel_step_kph=wheel_step_kph)
         return _rows(pieces, rows.stop - rows.start)
 
+    for folder in dict.fromkeys(path.parent for path in paths):  # a vehicle's trips share one
+        folder.mkdir(parents=True, exist_ok=True)
     sizes = []
     for path, start_ms, n, end in zip(paths, starts_ms, lengths, ends):
-        path.parent.mkdir(parents=True, exist_ok=True)
         with open(path, "wb") as fh:
             fh.write(_metadata(style, chosen, vehicle_id, start_ms, n))
             r = int(end - n)

@@ -114,7 +114,7 @@ def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray
         # Every grid instant is a tick, and the window reaches back into the grid step before it,
         # over which the wheel turned at ``held``.
         tick, a = t, b - held * module.window_s
-        window_s = np.where(held > 0, module.window_s, np.inf)
+        window_s = np.where(held > 0, module.window_s, np.inf) if module.method == "count" else None
     else:
         def angle_at(time: np.ndarray) -> np.ndarray:
             x = np.minimum(time * rate_hz, total - 1.0)
@@ -125,7 +125,7 @@ def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray
         tick = np.floor((t - run_start) / module.tick_s + 1e-9) * module.tick_s + run_start
         start = np.maximum(tick - module.window_s, run_start)  # the window stays within the trip
         b, a = angle_at(tick), angle_at(start)
-        window_s = np.where(tick > start, tick - start, np.inf)
+        window_s = np.where(tick > start, tick - start, np.inf) if module.method == "count" else None
     pitch = 2 * np.pi / n_teeth
     row = owner * n_teeth
     error = tooth_error.reshape(-1)
