@@ -186,6 +186,13 @@ def _number_words(decimals: int, point: str, sep: bytes) -> np.ndarray:
     return cells.view(np.uint64)[:, 0]
 
 
+def _table_fits(decimals: int, point: str, sep: bytes) -> bool:
+    """Whether the longest table entry ("-" whole digits, point, decimals, ``sep``) fits one 8-byte word;
+    a fine step (e.g. 1/32 km/h printed with 5 decimals) is spelled out instead."""
+    whole = len(str(_TABLE_STEPS // 10**decimals))
+    return 1 + whole + (len(point) + decimals if decimals else 0) + len(sep) <= 8
+
+
 def _number_cells(values: np.ndarray, units_per_step: float, decimals: int, point: str, sep: bytes) -> np.ndarray:
     """Cells of ``values`` (SI) in steps of ``units_per_step`` with ``decimals``, each followed by ``sep``;
     NaN → an empty cell. Words (n,) from the table, or characters (n, width) beyond it.
@@ -195,7 +202,8 @@ def _number_cells(values: np.ndarray, units_per_step: float, decimals: int, poin
     table is spelled out digit by digit instead.
     """
     steps = np.rint(values / units_per_step)
-    if not (np.fmin.reduce(steps) < -_TABLE_STEPS or np.fmax.reduce(steps) > _TABLE_STEPS):
+    if _table_fits(decimals, point, sep) and not (np.fmin.reduce(steps) < -_TABLE_STEPS
+                                                 or np.fmax.reduce(steps) > _TABLE_STEPS):
         index = steps + _TABLE_STEPS
         np.fmin(index, 2 * _TABLE_STEPS + 1, out=index)  # fmin of NaN and x is x: NaN → the empty cell
         return _number_words(decimals, point, sep).take(index.astype(np.intp))
