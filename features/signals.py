@@ -224,14 +224,21 @@ def _window_share(n: int, width: int) -> np.ndarray:
 def widen(mask: np.ndarray, half: int) -> np.ndarray:
     """True within ``half`` samples of any True sample of a 1-D ``mask`` (a dilation).
 
-    From a running count of True samples (exact integers), so it costs one
-    cumulative sum rather than a moving mean of the mask.
+    Shifted ORs whose reach doubles each time, forward then backward: about
+    2·log2(half) passes over booleans, several times cheaper than a running
+    count or a moving mean of the mask.
     """
-    n = mask.size
-    count = np.zeros(n + 2 * half + 1, dtype=np.int32)
-    np.cumsum(mask, out=count[half + 1: half + 1 + n])
-    count[half + 1 + n:] = count[half + n]
-    return count[2 * half + 1:] > count[:n]
+    out = mask.copy()
+    for forward in (True, False):
+        reach = 1  # out[p] covers this many offsets (0 included) in this direction
+        while reach < half + 1:
+            step = min(reach, half + 1 - reach)
+            if forward:
+                out[step:] |= out[:-step]  # numpy buffers the overlap: as if from a copy
+            else:
+                out[:-step] |= out[step:]
+            reach += step
+    return out
 
 
 def moving_std(x: np.ndarray, width: int) -> np.ndarray:
