@@ -368,25 +368,27 @@ def seconds(mask: np.ndarray, trip: TripArrays) -> float:
 def keep_runs(mask: np.ndarray, trip: TripArrays, min_s: float, trim_start_s: float = 0.0) -> np.ndarray:
     """Keep only runs of ``mask`` lasting at least ``min_s``, minus their first ``trim_start_s``.
 
-    A run is broken by a time gap as well as by a False sample.
+    A run is broken by a time gap as well as by a False sample. Built from the
+    runs' boundaries by np.repeat (one value per run and per stretch between
+    runs), which is several times cheaper than a cumulative sum over the trace.
     """
     if not mask.any():
         return mask.copy()
-    starts = mask & ~np.concatenate(([False], mask[:-1] & ~trip.gap_after[:-1]))
-    ends = mask & ~np.concatenate((mask[1:] & ~trip.gap_after[:-1], [False]))
-    if trim_start_s == 0.0:  # whole runs: mark the long ones from their first to their last sample
-        first, last = np.flatnonzero(starts), np.flatnonzero(ends)
-        long_enough = (trip.t[last] + trip.dt[last] - trip.t[first]) >= min_s
-        marks = np.zeros(mask.size + 1, dtype=np.int32)
-        marks[first[long_enough]] = 1
-        marks[last[long_enough] + 1] = -1
-        return np.cumsum(marks[:-1]) > 0
-    run_id = np.cumsum(starts) - 1
-    start_t = trip.t[starts]
-    end_t = trip.t[ends] + trip.dt[ends]
-    long_enough = (end_t - start_t) >= min_s
-    rid = np.clip(run_id, 0, None)
-    return mask & long_enough[rid] & (trip.t - start_t[rid] >= trim_start_s)
+    first = np.flatnonzero(mask & ~np.concatenate(([False], mask[:-1] & ~trip.gap_after[:-1])))
+    last = np.flatnonzero(mask & ~np.concatenate((mask[1:] & ~trip.gap_after[:-1], [False])))
+    long_enough = (trip.t[last] + trip.dt[last] - trip.t[first]) >= min_s
+    # stretches: before run 0, run 0, between runs 0 and 1 (empty at a gap), run 1, ..., after the last run
+    bounds = np.empty(2 * first.size + 2, dtype=np.intp)
+    bounds[0], bounds[-1] = 0, mask.size
+    bounds[1:-1:2], bounds[2:-1:2] = first, last + 1
+    lengths = np.diff(bounds)
+    if trim_start_s == 0.0:  # whole runs
+        keep = np.zeros(lengths.size, dtype=bool)
+        keep[1::2] = long_enough
+        return np.repeat(keep, lengths)
+    start_t = np.full(lengths.size, np.inf)  # outside the long runs t − ∞ never reaches the trim
+    start_t[1::2] = np.where(long_enough, trip.t[first], np.inf)
+    return trip.t - np.repeat(start_t, lengths) >= trim_start_s
 
 
 def count_events(mask: np.ndarray) -> int:
