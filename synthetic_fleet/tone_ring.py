@@ -81,10 +81,15 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     out = np.empty(total if at is None else len(at))
     # In blocks that stay in the processor's cache with their dozen temporaries.
     for lo in range(0, len(out), _BLOCK):
-        block = slice(lo, lo + _BLOCK)
+        block = slice(lo, min(lo + _BLOCK, len(out)))
         where = block if at is None else at[block]
         # the speed over the grid step before each sample (none before a trip)
-        held = omega[np.arange(lo, min(lo + _BLOCK, total)) - 1] if at is None else omega[where - 1]
+        if at is None:
+            held = np.empty(block.stop - lo)
+            held[1:] = omega[lo:block.stop - 1]
+            held[0] = omega[lo - 1]  # (lo = 0 begins a run: zeroed below)
+        else:
+            held = omega[where - 1]
         held[run_starts[where]] = 0.0
         out[block] = _published(t_grid[where], owner[where], held, angle[where], angle, t_grid, run_start_s,
                                 rate_hz, radius_m, n_teeth, module, tooth_error, missing)
