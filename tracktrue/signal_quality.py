@@ -46,20 +46,29 @@ def fresh_rate(values: np.ndarray, moving: np.ndarray, seconds: float) -> tuple[
     """(rate_hz, stale_frac) of one signal over one trip (module docstring); NaN where nothing moves.
 
     ``values`` the signal (NaN = missing cell), ``moving`` a boolean mask of
-    the rows where the vehicle moves, ``seconds`` their moving_seconds.
+    the rows where the vehicle moves, ``seconds`` their moving_seconds. Each
+    known value is compared with the previous known one: neighbours where both
+    are known, and across each run of missing cells the values either side of
+    it (found from the few edges of the runs, so the trace is never compacted).
     """
     known = np.isfinite(values)
-    if known.all():  # the common case: no index arrays
-        x, counted = values, moving[1:]
-    else:
-        idx = np.flatnonzero(known)
-        x, counted = values[idx], moving[idx[1:]]  # each known value against the previous known one
-    if seconds <= 0 or x.size < 2:
+    if seconds <= 0 or np.count_nonzero(known) < 2:
         return float("nan"), float("nan")
-    n_counted = int(np.count_nonzero(counted))
+    complete = bool(known.all())
+    counted = moving[1:] if complete else known[1:] & known[:-1] & moving[1:]
+    repeat = values[1:] == values[:-1]
+    repeat &= counted
+    n_counted, n_repeat = int(np.count_nonzero(counted)), int(np.count_nonzero(repeat))
+    if not complete:
+        edges = np.flatnonzero(known[1:] != known[:-1])
+        before = edges[known[edges]]  # the last known value ahead of a missing run
+        after = edges[~known[edges]] + 1  # the first known value after one
+        if not known[0]:
+            after = after[1:]  # the run at the start has nothing before it
+        before = before[: after.size]  # nor the run at the end anything after it
+        bridged = moving[after]
+        n_counted += int(np.count_nonzero(bridged))
+        n_repeat += int(np.count_nonzero(bridged & (values[before] == values[after])))
     if not n_counted:
         return float("nan"), float("nan")
-    repeat = x[1:] == x[:-1]
-    repeat &= counted  # counts, not a selection: no copy of the counted repeats
-    n_repeat = int(np.count_nonzero(repeat))
     return (n_counted - n_repeat) / seconds, n_repeat / n_counted
