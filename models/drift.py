@@ -18,6 +18,24 @@ b = h + 1.166:
 with the two-sided ARL from 1/ARL = 1/ARL⁺ + 1/ARL⁻. The approximation
 reproduces the published table closely (k = 0.5, h = 4: 169 against 168; h = 5:
 469 against 465), and tests check the CUSUM itself by simulation.
+
+Uncorroborated statistics. The derivation above assumes each statistic is
+centred on its true in-control mean. It is not: it is referred to the
+vehicle's own baseline, a median of ``n`` trips, whose error
+e ~ N(0, π/(2n)) in units of the within-vehicle spread (the sample median's
+asymptotic variance πσ²/(2n); Kendall & Stuart, from memory) stays with the
+series as a persistent shift. An alarm that needs a second, independent
+residual to agree (models.attribution) is protected against it: two baselines
+are not wrong together. An alarm raised by one residual alone is not, so its
+threshold must hold the budget for a baseline off by one standard error:
+
+    h_sole: two-sided ARL(δ = √(π/(2n))) ≥ ARL0
+
+(``threshold_for_arl`` with ``shift``). With n = 10, k = 0.75 and
+ARL0 ≈ 57,000 trips this is h ≈ 12.4 against 6.7 (the expected rate over the
+whole error distribution is dominated by its tails and gives no usable
+threshold: run lengths with estimated parameters are a known weakness of the
+CUSUM, Jones, Champ & Rigdon 2004, from memory).
 """
 
 from __future__ import annotations
@@ -44,18 +62,24 @@ def siegmund_arl_two_sided(k: float, h: float, shift: float = 0.0) -> float:
     return 1.0 / (1.0 / siegmund_arl_one_sided(k, h, shift) + 1.0 / siegmund_arl_one_sided(k, h, -shift))
 
 
-def threshold_for_arl(k: float, arl0: float) -> float:
-    """Smallest h whose two-sided in-control ARL reaches ``arl0`` (bisection; ARL rises with h)."""
+def threshold_for_arl(k: float, arl0: float, shift: float = 0.0) -> float:
+    """Smallest h whose two-sided ARL at a mean ``shift`` (0: in control) reaches ``arl0``
+    (bisection; ARL rises with h). ``shift`` < k, else no h holds the ARL for long."""
     lo, hi = 0.0, 1.0
-    while siegmund_arl_two_sided(k, hi) < arl0:
+    while siegmund_arl_two_sided(k, hi, shift) < arl0:
         hi *= 2.0
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        if siegmund_arl_two_sided(k, mid) < arl0:
+        if siegmund_arl_two_sided(k, mid, shift) < arl0:
             lo = mid
         else:
             hi = mid
     return hi
+
+
+def baseline_error(n_baseline: int) -> float:
+    """Standard error of a median of ``n_baseline`` unit-variance values: √(π/(2n)) (see module doc)."""
+    return math.sqrt(math.pi / (2.0 * n_baseline))
 
 
 def required_arl0(n_statistics: int, trips_per_day: float, budget_vehicle_days: float) -> float:

@@ -33,7 +33,13 @@ against a second source agrees (at ``confirm_strength``·h; rows in
 models.attribution.COMPONENT_RESIDUALS): on the tuning seeds every false
 sensor alert on a healthy vehicle came from one residual alone — a lateral
 level at rest moved by the road bank of the stops, yaw against steering moved
-by load and route. Once raised, a sensor alert stands while some sensor
+by load and route. Where one residual must decide alone (the only witness a
+logger measures, or models.attribution.SOLE_WITNESS), its CUSUM must reach
+``sole_cusum_h_`` instead of h: the threshold that holds the budget for a
+baseline off by one standard error (models.drift, "Uncorroborated
+statistics"; on the tuning seeds the polled loggers' false alerts were one
+standstill accelerometer level whose CUSUM crept to h on a baseline median of
+ten trips). Once raised, a sensor alert stands while some sensor
 residual stays at ``confirm_strength``·h (hysteresis: one episode, one alert).
 ``inspect`` needs a sensor alert on a sensor component; ``flagged_since`` is
 the date of the first trip of the current run of alerts.
@@ -49,7 +55,7 @@ import pandas as pd
 
 from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, residuals_of,
                                 suggestion_for)
-from models.drift import required_arl0, tabular_cusum, threshold_for_arl
+from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
 from models.service import FAMILIES, epoch_keys, service_table, statistic_family
@@ -183,6 +189,7 @@ class FleetScorer:
         self.trips_per_day_ = float(self.trips_per_day or max(1.0, float(np.median(n / days))))
         self.arl0_ = required_arl0(len(self.statistics_), self.trips_per_day_, self.budget_vehicle_days)
         self.cusum_h_ = threshold_for_arl(self.cusum_k, self.arl0_)
+        self.sole_cusum_h_ = threshold_for_arl(self.cusum_k, self.arl0_, baseline_error(self.baseline_trips))
         # fleet score thresholds from the spread of vehicle scores
         vscore = self._vehicle_scores(recent.assign(score=self.forest_.score(design)))
         med = float(vscore.median())
@@ -327,7 +334,8 @@ class FleetScorer:
         ratio_strength = strength[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(df))
         wheel_signal = np.array([c.startswith("wheel_signal_") for c in self.statistics_])
         measured = u.notna().groupby(vehicle_key).cummax().to_numpy(dtype=bool)
-        confirmed = self._corroborated(strength, ratio_strength < 0.5, measured=measured)
+        confirmed = self._corroborated(strength, ratio_strength < 0.5, measured=measured,
+                                       sole=self.sole_cusum_h_ / self.cusum_h_)
         sensor_alarm = alarm[:, wheel_signal].any(axis=1) | np.any(list(confirmed.values()) or [False], axis=0)
         peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
@@ -377,7 +385,7 @@ class FleetScorer:
         return long
 
     def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray, names: list[str] | None = None,
-                      measured: np.ndarray | None = None) -> dict[str, np.ndarray]:
+                      measured: np.ndarray | None = None, sole: float = 1.0) -> dict[str, np.ndarray]:
         """Per non-wheel sensor and trip: one residual past h (strength > 1) and a residual
         against a second source of the same fault mode (models.attribution.COMPONENT_RESIDUALS)
         at least ``confirm_strength``? Versus-wheels residuals count only while the wheel ratios
@@ -386,7 +394,8 @@ class FleetScorer:
         names: drift alarms, i.e. changes), on the vehicle's own logs so far (a polled
         logger whose wheel steps gate the wheel-derived references out leaves the level
         at rest as the only witness); with ``measured``, a change in a residual of
-        models.attribution.SOLE_WITNESS counts alone too."""
+        models.attribution.SOLE_WITNESS counts alone too. A residual deciding alone must
+        exceed ``sole`` (in units of h; the drift alarm's sole_cusum_h_ / h, see module doc)."""
         names = self.statistics_ if names is None else names
         col = {s: j for j, s in enumerate(names)}
         gated = np.where(np.array(["_vs_wheels" in c for c in names])[None, :] & ~wheels_agree[:, None],
@@ -404,7 +413,7 @@ class FleetScorer:
                     continue
                 st = np.column_stack([gated[:, g].max(axis=1) for g in groups])
                 if len(groups) == 1:
-                    hit |= (st[:, 0] > 1.0) & only_one
+                    hit |= (st[:, 0] > sole) & only_one
                     continue
                 top2 = np.sort(st, axis=1)[:, -2:]
                 hit |= (top2[:, 1] > 1.0) & (top2[:, 0] >= self.confirm_strength)
@@ -412,9 +421,9 @@ class FleetScorer:
                     seen = np.column_stack([measured[:, g].any(axis=1) for g in groups])
                     exclusive = np.array([not set(w) & shared for w in named])
                     alone = (seen.sum(axis=1) == 1) & (seen & exclusive[None, :]).any(axis=1)
-                    hit |= alone & (top2[:, 1] > 1.0)
+                    hit |= alone & (top2[:, 1] > sole)
             if measured is not None and SOLE_WITNESS.get(component) in col:  # a change only (see SOLE_WITNESS)
-                hit |= gated[:, col[SOLE_WITNESS[component]]] > 1.0
+                hit |= gated[:, col[SOLE_WITNESS[component]]] > sole
             out[component] = hit
         return out
 

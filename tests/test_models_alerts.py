@@ -91,3 +91,19 @@ def test_witnesses_must_share_the_fault_mode_a_yaw_offset_is_not_confirmed_by_ya
     assert not _any(sc, _strength(yaw=1.5, steering_vs_yaw=0.9), True)
     assert _any(sc, _strength(yaw=1.5, yaw_vs_wheels=0.6), True)
     assert _any(sc, _strength(yaw_gain=1.5, steering_vs_yaw=0.6), True)
+
+
+def test_a_residual_deciding_alone_must_reach_the_uncorroborated_threshold():
+    # a healthy polled vehicle: its standstill lateral level crept just past h on a baseline
+    # of ten trips (tuning seed 101); alone, it must reach sole_cusum_h_ / h (models.drift)
+    sc = _scorer()
+    rest_only = _strength(accel_lat=1.0).astype(bool)
+    hit = lambda s, sole: bool(sc._corroborated(_strength(accel_lat=s), np.array([True]), measured=rest_only,  # noqa: E731
+                                                sole=sole)["accel_lat_sensor"][0])
+    assert hit(1.05, 1.0)
+    assert not hit(1.05, 1.85) and not hit(1.8, 1.85)
+    assert hit(1.9, 1.85)
+    # corroborated alarms keep h: two baselines are not wrong together
+    both = sc._corroborated(_strength(accel_lat=1.05, accel_lat_vs_wheels=0.6), np.array([True]),
+                            measured=np.ones((1, len(STATS)), dtype=bool), sole=1.85)
+    assert both["accel_lat_sensor"][0]

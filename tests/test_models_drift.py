@@ -75,3 +75,32 @@ def test_flagged_since_reaches_back_to_the_change_point_but_never_after_the_firs
     later = pd.Series([pd.NaT] * 3 + [times[5]] * 3)
     assert run_start(times, alert, later) == times[3]
     assert run_start(times, np.array([True] * 5 + [False]), since) is None
+
+
+def test_median_baseline_error_matches_simulation():
+    # the sample median's asymptotic standard error σ·√(π/(2n)) (Kendall & Stuart, from memory),
+    # checked against simulated medians of 10 and 30 unit-variance values; at small even n the
+    # median of the two central values is a little tighter, so the formula errs on the safe side
+    from models.drift import baseline_error
+    rng = np.random.default_rng(3)
+    for n in (10, 30):
+        sim = np.median(rng.standard_normal((20000, n)), axis=1).std()
+        assert sim <= baseline_error(n) <= 1.08 * sim
+
+
+def test_uncorroborated_threshold_holds_the_budget_for_a_baseline_one_standard_error_off():
+    from models.drift import baseline_error
+    arl0 = required_arl0(17, 2.25, 1500.0)
+    h, e = threshold_for_arl(0.75, arl0), baseline_error(10)
+    h_sole = threshold_for_arl(0.75, arl0, shift=e)
+    assert siegmund_arl_two_sided(0.75, h_sole, shift=e) >= arl0 > siegmund_arl_two_sided(0.75, h_sole - 0.05, shift=e)
+    assert siegmund_arl_two_sided(0.75, h, shift=e) < arl0 / 5  # h alone would spend the budget many times over
+    # by simulation: with the baseline one standard error off, nearly every series alarms at h within
+    # 3,000 trips; at h_sole about as many as a run length of ARL0 implies (1 − e^(−3000/ARL0) ≈ 5 %)
+    rng = np.random.default_rng(5)
+    u = rng.standard_normal((400, 3000)) + e
+    hi, lo = tabular_cusum(u, 0.75)
+    peak = np.maximum(hi, lo).max(axis=1)
+    expected = 1.0 - np.exp(-3000 / arl0)
+    assert (peak > h).mean() > 0.8 and (peak > h_sole).mean() < 2.0 * expected
+    assert siegmund_arl_two_sided(0.75, h_sole, shift=2.5) < 10  # a 2.5σ change is still found within days
