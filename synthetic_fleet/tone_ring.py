@@ -72,7 +72,8 @@ def module_speeds(omega_rps: np.ndarray, trips: Segments, rate_hz: float, radius
     omega = omega_rps.ravel()
     angle = wheel_angles(omega, runs, rate_hz, phase_rad.ravel())
     total = len(angle)
-    t_grid = np.arange(total, dtype=float) * (1.0 / rate_hz)
+    t_grid = np.arange(total, dtype=float)
+    t_grid *= 1.0 / rate_hz
     run_start_s = runs.starts / rate_hz
     owner = runs.owner
     run_starts = np.zeros(total, dtype=bool)
