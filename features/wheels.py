@@ -236,7 +236,7 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
     n_rolling = rolling.sum(axis=0)
     for i, pos in enumerate(POSITIONS):
         name = f"wheel_dropouts_{pos}"
-        if not np.isfinite(trip.wheels[i]).any():
+        if not trip.has(f"wheel_speed_{pos}"):
             row.nan(name, "signal_missing")
             continue
         if not distance_km >= DROPOUT_MIN_KM:

@@ -75,8 +75,8 @@ def wheel_yaw_reason(trip: TripArrays, spec: VehicleSpec, ref: WheelReference, s
         return missing
     if ref.reason:
         return ref.reason
-    steps = [trip.resolution.get(f"wheel_speed_{p}", np.nan) for p in ("rl", "rr")]
-    step = np.nanmax(steps) if np.isfinite(steps).any() else np.nan
+    steps = [s for s in (trip.resolution.get(f"wheel_speed_{p}", np.nan) for p in ("rl", "rr")) if np.isfinite(s)]
+    step = max(steps) if steps else np.nan
     if np.isfinite(step) and step / spec.track_rear_m > WHEEL_YAW_MAX_STEP_RADPS:
         return "resolution_too_coarse"
     return None
