@@ -23,6 +23,17 @@ many trips does not own the median.
 dropouts) from dividing by nothing: it is the larger of a per-family floor in
 the feature's unit (about the smallest difference worth reporting; design
 choices, listed in FEATURE_FLOORS) and ``rel_floor`` × the fleet-wide spread.
+
+A group's scale is also at least the *between-vehicle* spread of its logger
+class: the scaled MAD of each vehicle's median about its own group's median of
+vehicle medians, pooled over every group of the class (``between_vehicle_spread``).
+A level that is a vehicle's own (a yaw sensor's zero, a steering centre) spreads
+between vehicles, not between trips, and a platform group of five vehicles —
+four, leaving one out — cannot measure that spread: on the tuning seeds a
+healthy pickup's yaw zero of −0.18 deg/s stood 8 spreads from four others
+within 0.1 deg/s, while the class's vehicles spread 0.1 deg/s about their
+groups' centres. Pooling over the class is what the drift's within-vehicle
+spread does for the same reason (models.scorer).
 """
 
 from __future__ import annotations
@@ -124,16 +135,22 @@ def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: flo
     floors = np.array([feature_floor(f) for f in features])
     floors = np.fmax(floors, rel_floor * np.nan_to_num(fleet_scale, nan=0.0))
     floors = np.where(floors > 0, floors, 1e-9)
+    between = between_vehicle_spread(reference, features, min_ref_trips)
     rows = []
     for group, ref in _group_references(reference):
         values = ref[features].to_numpy(dtype=float)
         vehicles = ref["vehicle_id"].to_numpy()
+        cls = group.partition("/")[2]
+        if cls in between.index:
+            floors_g = np.fmax(floors, np.nan_to_num(between.loc[cls].to_numpy(dtype=float), nan=0.0))
+        else:
+            floors_g = floors
         med, scale = _median_mad(values, min_ref_trips)
-        rows.append((group, "*", med, np.fmax(scale, floors), len(set(vehicles))))
+        rows.append((group, "*", med, np.fmax(scale, floors_g), len(set(vehicles))))
         for vid in pd.unique(vehicles):
             keep = vehicles != vid
             med_v, scale_v = _median_mad(values[keep], min_ref_trips)
-            rows.append((group, vid, med_v, np.fmax(scale_v, floors), len(set(vehicles[keep]))))
+            rows.append((group, vid, med_v, np.fmax(scale_v, floors_g), len(set(vehicles[keep]))))
     if not rows:
         return pd.DataFrame(columns=["peer_group", "vehicle_id", "n_ref_vehicles"])
     centers = pd.DataFrame(np.vstack([r[2] for r in rows]), columns=[f"center__{f}" for f in features])
@@ -141,6 +158,23 @@ def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: flo
     keys = pd.DataFrame({"peer_group": [r[0] for r in rows], "vehicle_id": [r[1] for r in rows],
                          "n_ref_vehicles": [r[4] for r in rows]})
     return pd.concat([keys, centers, scales], axis=1)
+
+
+def between_vehicle_spread(reference: pd.DataFrame, features: list[str], min_trips: int,
+                           min_vehicles: int = 6) -> pd.DataFrame:
+    """Per logger class (rows) and feature: 1.4826 × the median |vehicle median − its group's
+    median of vehicle medians| over the class's vehicles with ``min_trips`` trips or more
+    (NaN below ``min_vehicles`` such vehicles). See the module doc."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        per = reference.groupby(["peer_group", "vehicle_id"])[features].median()
+        counts = reference.groupby(["peer_group", "vehicle_id"])[features].count()
+        per = per.where(counts >= min_trips)
+        dev = (per - per.groupby(level=0).transform("median")).abs()
+        cls = np.array([g.partition("/")[2] for g in dev.index.get_level_values(0)], dtype=object)
+        spread = dev.groupby(cls).median() * MAD_TO_SIGMA
+        enough = dev.notna().groupby(cls).sum() >= min_vehicles
+    return spread.where(enough)
 
 
 def _group_references(reference: pd.DataFrame):

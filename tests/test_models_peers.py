@@ -100,3 +100,20 @@ def test_a_fallback_group_is_compared_with_the_whole_fleet_of_its_logger_kind_no
     stats = peer_statistics(df, ["x"], rel_floor=0.0, min_ref_trips=5)
     z = normalise(df, stats, ["x"])["x"]
     assert abs(z[df["vehicle_id"] == "P2"].median()) < 3  # against the two other pickups alone it is ~20
+
+
+def test_a_healthy_own_level_in_a_small_platform_is_scaled_by_the_class_between_vehicle_spread():
+    # a vehicle's own level (a yaw zero) spreads between vehicles: four pickups that happen to
+    # agree within 0.03 cannot say that a fifth at −0.18 is extreme when the class's vans spread
+    # 0.1 about their centre (tuning seed 202); a real fault (1.5) still stands out
+    rng = np.random.default_rng(4)
+    pickups = {f"P{i}": list(c + rng.normal(0, 0.01, 20)) for i, c in enumerate((0.05, 0.06, 0.07, 0.08))}
+    vans = {f"V{i}": list(c + rng.normal(0, 0.01, 20)) for i, c in enumerate(rng.normal(0, 0.1, 8))}
+    def z_of(level: float) -> float:
+        df = pd.concat([_fleet({**pickups, "ODD": list(level + rng.normal(0, 0.01, 20))}, platform="pickup"),
+                        _fleet(vans, platform="van")], ignore_index=True)
+        df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, min_peer_vehicles=5)
+        z = normalise(df, peer_statistics(df, ["x"], rel_floor=0.0, min_ref_trips=5), ["x"])["x"]
+        return float(z[df["vehicle_id"] == "ODD"].median())
+    assert abs(z_of(-0.18)) < 4.0
+    assert z_of(1.5) > 8.0
