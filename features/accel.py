@@ -17,6 +17,7 @@ from features.signals import (
     median,
     moving_mean,
     nan_median,
+    pair_differences,
     seconds,
     smooth_derivative,
     three_cornered_hat,
@@ -131,8 +132,7 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
     # differences: the five estimates share most of their signal, and
     # C_ii + C_jj − 2·C_ij from a covariance matrix would cancel it in rounding
     pairs = [(i, j) for i in range(5) for j in range(i + 1, 5)]
-    first, second = np.array(pairs).T
-    differences = sources[first] - sources[second]
+    differences = pair_differences(sources)  # rows in the order of ``pairs``
     differences -= differences.mean(axis=1, keepdims=True)
     variances = np.einsum("ij,ij->i", differences, differences) / (sources.shape[1] - 1)
     pair_var = dict(zip(pairs, variances))

@@ -116,7 +116,7 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
     present = {name: int(np.count_nonzero(ok)) for name, ok in finite.items()}
     logged = frozenset(name for name, k in present.items() if k)
     missing = {name: 1.0 - k / t.size if t.size else 1.0 for name, k in present.items()}
-    resolution = {c: smallest_step(every[c] if present[c] == t.size else every[c][finite[c]])
+    resolution = {c: _smallest_known_step(every[c] if present[c] == t.size else every[c][finite[c]])
                   for c in NUMERIC_SIGNALS}
     return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
                       gap_after=gap_after, resolution=resolution, logged=logged, missing=missing, present=present)
@@ -131,11 +131,16 @@ def smallest_step(values: np.ndarray) -> float:
     signal never changes.
     """
     finite = np.isfinite(values)
-    steps = np.diff(values if finite.all() else values[finite])
+    return _smallest_known_step(values if finite.all() else values[finite])
+
+
+def _smallest_known_step(known: np.ndarray) -> float:
+    """``smallest_step`` of a trace without missing values."""
+    steps = np.diff(known)
     np.abs(steps, out=steps)
     # rounding is monotonic, so the smallest step that survives rounding is the
-    # rounded smallest step above half a unit: no need to round every step
-    # a select and a plain min: faster than min(where=...) over a quantised trace's many zero steps
+    # rounded smallest step above half a unit: no need to round every step (a
+    # select and a plain min: faster than min(where=...) over many zero steps)
     smallest = float(np.where(steps >= 5e-10, steps, np.inf).min()) if steps.size else np.inf
     if not np.isfinite(smallest):
         return np.nan
@@ -504,6 +509,20 @@ def deming_fit(x: np.ndarray, y: np.ndarray, noise_ratio: float) -> tuple[float,
         d = syy - noise_ratio * sxx
         b = (d + np.sqrt(d * d + 4.0 * noise_ratio * sxy * sxy)) / (2.0 * sxy)
     return float(b), float(my - b * mx)
+
+
+def pair_differences(x: np.ndarray) -> np.ndarray:
+    """Each row of a (k, m) stack minus each later row: rows (0, 1), (0, 2), …, (k − 2, k − 1).
+
+    One broadcast subtraction per row, written in place: no gathered copies of the stack.
+    """
+    k = x.shape[0]
+    out = np.empty((k * (k - 1) // 2, x.shape[1]))
+    start = 0
+    for i in range(k - 1):
+        np.subtract(x[i], x[i + 1:], out=out[start:start + k - 1 - i])
+        start += k - 1 - i
+    return out
 
 
 def three_cornered_hat(pair_variances: Mapping[tuple[int, int], float], n_sources: int) -> np.ndarray:

@@ -23,6 +23,7 @@ from features.signals import (
     median_of_four,
     median_of_three,
     moving_mean,
+    pair_differences,
     robust_spread,
     SMOOTH_S,
     seconds,
@@ -135,7 +136,8 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
     if reason:
         return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, nan, reason)
     width = window_samples(SMOOTH_S, trip.rate_hz)
-    rear = moving_mean(rear_axle_yaw_rate(rl, rr, spec.track_rear_m), width)
+    rear_yaw = rear_axle_yaw_rate(rl, rr, spec.track_rear_m)
+    rear = moving_mean(rear_yaw, width)
     front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
     with np.errstate(invalid="ignore"):
         agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
@@ -144,8 +146,7 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         consensus = np.where(np.isfinite(sensor), median_of_three(sensor, rear, front), 0.5 * (rear + front))
     else:
         consensus = 0.5 * (rear + front)
-    return WheelReference(offset, 0.5 * (rl + rr), rear_axle_yaw_rate(rl, rr, spec.track_rear_m),
-                          calibrated, agree, consensus, rear, None)
+    return WheelReference(offset, 0.5 * (rl + rr), rear_yaw, calibrated, agree, consensus, rear, None)
 
 
 def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
@@ -213,8 +214,7 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         log_speed = np.log(np.compress(near, trip.wheels, axis=1), out=np.full((4, kept.size), np.nan), where=kept)
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
     fast = np.compress(kept, log_speed - moving_mean(log_speed, width), axis=1)
-    first, second = np.array(WHEEL_PAIRS).T
-    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(fast[first] - fast[second]) ** 2))
+    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast)) ** 2))  # rows in WHEEL_PAIRS' order
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
         step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)

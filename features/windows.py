@@ -83,8 +83,7 @@ def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
     with np.errstate(invalid="ignore"):
         fast_calm = calm & (speed >= CRUISE_SPEED_MPS)
     if straight_reason is None:
-        agree = np.sum([v for v in votes.values()], axis=0)
-        cruise = keep_runs(fast_calm & (agree >= 2), trip, CRUISE_MIN_S)
+        cruise = keep_runs(fast_calm & _two_or_more(votes.values(), trip.n), trip, CRUISE_MIN_S)
     else:
         cruise = np.zeros(trip.n, dtype=bool)
     if "yaw" in votes and "wheels" in votes:
@@ -94,6 +93,15 @@ def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
     return Windows(speed=speed, accel=accel, moving=moving, standstill=standstill, cruise=cruise,
                    straight_by_yaw_and_wheels=both, calm=calm, rolling=_rolling_everywhere(trip),
                    standstill_reason=standstill_reason, straight_reason=straight_reason)
+
+
+def _two_or_more(votes, n: int) -> np.ndarray:
+    """True where at least two of the boolean ``votes`` (each of ``n`` samples) are: a count by ORs, no integer stack."""
+    seen, two = np.zeros(n, dtype=bool), np.zeros(n, dtype=bool)
+    for vote in votes:
+        two |= seen & vote
+        seen |= vote
+    return two
 
 
 def _rolling_everywhere(trip: TripArrays) -> np.ndarray:
