@@ -157,13 +157,13 @@ def _published(t: np.ndarray, owner: np.ndarray, held: np.ndarray, b: np.ndarray
         return np.maximum(counted, 0) * pitch * radius_m / window_s
     # The module divides the angle it counts, (counted − 1) pitches, by the time between the first
     # and the last edge, which lie (last − first + e_last − e_first) pitches apart.
-    apart = (last - first) + (error[row + k_last] - error[row + k_first])
     if aligned:  # both edges lie in the grid step before the tick, crossed at the speed ``held``
+        apart = (last - first) + (error[row + k_last] - error[row + k_first])
         speed = held * radius_m * (counted - 1) / np.where(counted >= 2, apart, np.inf)
         few = np.flatnonzero(counted < 2)
     else:
         speed = np.zeros(len(b))
-        few = np.arange(len(b))
+        few = slice(None)  # every sample (views, not copies: ``first`` and ``k_first`` are not read again)
     # Otherwise (and with fewer than two edges in the window, the last edge and the one before it)
     # the edges are timed by interpolation; no edge for timeout_s, or none since the trip began, reads 0.
     last, counted = last[few], np.maximum(counted[few], 2)
