@@ -107,3 +107,21 @@ def test_a_residual_deciding_alone_must_reach_the_uncorroborated_threshold():
     both = sc._corroborated(_strength(accel_lat=1.05, accel_lat_vs_wheels=0.6), np.array([True]),
                             measured=np.ones((1, len(STATS)), dtype=bool), sole=1.85)
     assert both["accel_lat_sensor"][0]
+
+
+def test_a_change_within_one_healthy_spread_raises_no_alarm_alone():
+    # a bus capture's yaw zero moving 0.03 deg/s with the weather (half a peer spread) took
+    # the rate at rest and the intercept against the wheels past h together (tuning seed 202)
+    import pandas as pd
+    sc = FleetScorer(vehicle_trips=4, min_trips=3, min_change_z=1.0)
+    sc.statistics_ = ["wheel_signal_fl", "yaw", "yaw_vs_wheels"]
+    n = 8
+    keys = {"sensor": np.array(["a"] * n), "tyre": np.array(["a"] * n)}
+    strength = np.full((n, 3), 1.6)
+    for level, expect in ((0.5, 1.0), (2.0, 1.6)):
+        change = pd.DataFrame(level + 0.1 * np.sin(np.arange(n))[:, None] * np.ones(3), columns=sc.statistics_)
+        got = sc._relevant(strength, change, keys)
+        np.testing.assert_allclose(got[-1], [1.6, expect, expect])  # wheel statistics are not capped
+    # a witness below h is untouched (it may still corroborate or sustain an alert)
+    weak = sc._relevant(np.full((n, 3), 0.7), pd.DataFrame(np.zeros((n, 3)), columns=sc.statistics_), keys)
+    np.testing.assert_allclose(weak, 0.7)
