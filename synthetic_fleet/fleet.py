@@ -15,6 +15,7 @@ import multiprocessing as mp
 import os
 import shutil
 import time
+import zlib
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import nullcontext
 from dataclasses import dataclass, field, replace
@@ -492,9 +493,21 @@ def _prepare_out(out: Path) -> None:
     (out / "logs").mkdir(parents=True, exist_ok=True)
 
 
+#: Every vehicle is on a service interval; its next service falls within this many days after the
+#: simulated period (so the inspection plan can combine inspections with services).
+NEXT_SERVICE_WITHIN_DAYS = 45
+
+
+def next_service_date(plan: FleetPlan, vehicle_id: str) -> dt.date:
+    """Spread by a hash of seed and id, not drawn from a random stream, so no simulated value moves."""
+    offset = zlib.crc32(f"{plan.seed}|{vehicle_id}".encode()) % (NEXT_SERVICE_WITHIN_DAYS + 1)
+    return plan.start + dt.timedelta(days=plan.days + offset)
+
+
 def _write_tables(out: Path, plan: FleetPlan, fleet_rate_hz: float) -> None:
     registry = pd.DataFrame([{"vehicle_id": v.vehicle_id, **v.spec.registry_row(), "depot": v.depot.name,
-                              "vin": v.vin} for v in plan.vehicles])
+                              "vin": v.vin, "next_service_date": next_service_date(plan, v.vehicle_id).isoformat()}
+                             for v in plan.vehicles])
     registry.to_csv(out / "vehicles.csv", index=False, lineterminator="\n")
     truth = pd.DataFrame([{
         "vehicle_id": v.vehicle_id, "fault": v.fault.name, "component": parse_fault(v.fault.name).component,

@@ -211,5 +211,5 @@ def trip_samples(platform_name: str = "compact_van", *, fault: str | None = None
     trip = simulate_trip(spec, health, cond, vehicle_id=vid, start=pd.Timestamp("2026-03-02T08:00:00Z"),
                          drive=drive, duration_s=duration_s, fleet_rate_hz=rate_hz, logger=logger, rng=trip_rng)
     registry = {"vehicle_id": vid, **spec.registry_row(), "depot": "simulated",
-                "vin": synthetic_vin(platform_name, DEPOTS[0], seed, 5)}
+                "vin": synthetic_vin(platform_name, DEPOTS[0], seed, 5), "next_service_date": None}
     return trip.to_frame(), registry

@@ -112,7 +112,10 @@ def test_fault_severity_is_zero_before_onset_and_grows_after():
 def test_fleet_tables_follow_the_contracts(fleet):
     out, summary = fleet
     vehicles = pd.read_csv(out / "vehicles.csv")
-    assert list(vehicles.columns) == [*REGISTRY_REQUIRED, "understeer_gradient_deg_per_g", "depot", "vin"]
+    assert list(vehicles.columns) == [*REGISTRY_REQUIRED, "understeer_gradient_deg_per_g", "depot", "vin",
+                                      "next_service_date"]
+    services = pd.to_datetime(vehicles.next_service_date).dt.date
+    assert (services >= START + dt.timedelta(days=summary.days)).all()
     assert set(REGISTRY_OPTIONAL) <= set(vehicles.columns)
     assert all(vin_problem(v) is None for v in vehicles.vin)
     truth = pd.read_csv(out / "truth.csv", dtype=str, keep_default_na=False)
