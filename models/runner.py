@@ -157,6 +157,7 @@ def _publish(store: Store, fleet: ScoredFleet, run_id: str, created_at: pd.Times
     runs = store.read_table("model_runs") if store.has_table("model_runs") else pd.DataFrame(columns=MODEL_RUNS_COLUMNS)
     window = f"{fleet.trip_features['start_time'].min().isoformat()} .. {fleet.trip_features['start_time'].max().isoformat()}"
     params = {**sc.get_params(), "derived": {"cusum_h": sc.cusum_h_, "arl0_trips": sc.arl0_,
+                                             "uncorroborated_cusum_h": sc.sole_cusum_h_,
                                              "trips_per_day": sc.trips_per_day_, "statistics": sc.statistics_,
                                              "fallback_peer_groups": sc.fallback_groups_}}
     row = pd.DataFrame([{
