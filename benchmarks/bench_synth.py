@@ -11,7 +11,9 @@ Two counts of "samples" are printed for a fleet, because they have drifted apart
   simulation costs the same.
 - *simulated instants*: all of a vehicle's signals at one instant of its
   simulation grid (trip seconds × the grid's rate: the bus-capture rate, a polled
-  logger's 20 Hz read grid, a telematics logger's 1 Hz), logged or not.
+  logger's 20 Hz read grid, a telematics logger's 1 Hz), logged or not. On a
+  polled vehicle the wheel-speed module is evaluated only at the logger's read
+  instants, so its 20 Hz count somewhat overstates that vehicle's work.
 
 The target applies to simulated instants: it was set when every logger wrote
 every instant (the two counts were one), and it is about how fast the
