@@ -175,7 +175,7 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     if not empty.any():
         return total / count  # a plain divide: faster than a masked one
     out = np.full(np.broadcast_shapes(total.shape, count.shape), np.nan)
-    return np.divide(total, count, out=out, where=~empty)  # no 0/0, which is slow
+    return np.divide(total, count, out=out, where=~empty)  # an empty window stays NaN
 
 
 def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
