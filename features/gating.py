@@ -159,7 +159,7 @@ def signal_figures(trip: TripArrays, moving: np.ndarray) -> dict[str, Figures]:
     for name in trip.resolution:
         if trip.has(name):
             values = trip.signal(name)
-            rate, stale = fresh_rate(values, moving, seconds)
+            rate, stale = fresh_rate(values, moving, seconds, known=trip.finite.get(name))
             row_hz = trip.present[name] / duration if duration > 0 else math.nan
             out[name] = Figures(trip.resolution[name], rate, stale, row_hz)
     return out

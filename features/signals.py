@@ -43,6 +43,7 @@ class TripArrays:
     logged: frozenset[str] = frozenset()  #: signals with at least one sample present
     missing: Mapping[str, float] = field(default_factory=dict)  #: share of missing samples per signal (and brake)
     present: Mapping[str, int] = field(default_factory=dict)  #: number of samples present per signal (and brake)
+    finite: Mapping[str, np.ndarray] = field(default_factory=dict)  #: which samples are present, per signal (and brake)
     _memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     def smoothed(self, name: str) -> np.ndarray:
@@ -119,7 +120,8 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
     resolution = {c: _smallest_known_step(every[c] if present[c] == t.size else every[c][finite[c]])
                   for c in NUMERIC_SIGNALS}
     return TripArrays(t=t, dt=dt, rate_hz=rate, wheels=wheels, signals=others, brake=brake,
-                      gap_after=gap_after, resolution=resolution, logged=logged, missing=missing, present=present)
+                      gap_after=gap_after, resolution=resolution, logged=logged, missing=missing, present=present,
+                      finite=finite)
 
 
 def smallest_step(values: np.ndarray) -> float:
@@ -168,7 +170,14 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     """
     valid = np.isfinite(x)
     if valid.all():
-        return uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0) / _window_share(x.shape[-1], width)
+        out = uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0)
+        n, half = x.shape[-1], width // 2
+        if n <= 2 * width:
+            return out / _window_share(n, width)
+        share = _window_share(n, width)  # 1 away from the ends: only they need dividing
+        out[..., :half] /= share[:half]
+        out[..., n - half:] /= share[n - half:]
+        return out
     total = uniform_filter1d(np.where(valid, x, 0.0), width, axis=-1, mode="constant", cval=0.0)
     count = _valid_count(valid, width)
     empty = count <= 0.5 / width

@@ -42,16 +42,18 @@ def moving_seconds(t_s: np.ndarray, moving: np.ndarray) -> float:
     return float(np.sum(np.where(steps > GAP_PERIODS * period, period, steps)))
 
 
-def fresh_rate(values: np.ndarray, moving: np.ndarray, seconds: float) -> tuple[float, float]:
+def fresh_rate(values: np.ndarray, moving: np.ndarray, seconds: float,
+               known: np.ndarray | None = None) -> tuple[float, float]:
     """(rate_hz, stale_frac) of one signal over one trip (module docstring); NaN where nothing moves.
 
     ``values`` the signal (NaN = missing cell), ``moving`` a boolean mask of
-    the rows where the vehicle moves, ``seconds`` their moving_seconds. Each
+    the rows where the vehicle moves, ``seconds`` their moving_seconds,
+    ``known`` np.isfinite(values) when the caller has it already. Each
     known value is compared with the previous known one: neighbours where both
     are known, and across each run of missing cells the values either side of
     it (found from the few edges of the runs, so the trace is never compacted).
     """
-    known = np.isfinite(values)
+    known = np.isfinite(values) if known is None else known
     if seconds <= 0 or np.count_nonzero(known) < 2:
         return float("nan"), float("nan")
     complete = bool(known.all())
