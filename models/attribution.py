@@ -74,6 +74,19 @@ def residuals_of(component: str) -> set[str]:
 #: the inspection checks the alignment first, then recalibrates the sensor.
 SOLE_WITNESS: dict[str, str] = {"steering_angle_sensor": "steering_vs_wheels"}
 
+#: "Versus wheels" residuals that no tyre can move, so an abnormal wheel ratio does not explain
+#: them away: the steering centre is the steering angle where the yaw sensor *and* the rear
+#: wheels say straight, and the wheels' vote is their left-right difference centred on its own
+#: trip median (features/windows.py), so a rolling-radius change shifts the vote's centre, not
+#: the straight road it finds. On the tuning seeds two steering offsets were taken for tyres
+#: because a seasonal tyre swap in the same weeks moved the ratios and silenced the centre.
+TYRE_PROOF: frozenset[str] = frozenset({"steering_vs_wheels"})
+
+
+def tyre_moves(residual: str) -> bool:
+    """Whether a rolling-radius change can move ``residual`` (a versus-wheels one not in TYRE_PROOF)."""
+    return "_vs_wheels" in residual and residual not in TYRE_PROOF
+
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
 
 
@@ -108,7 +121,9 @@ def choose_component(evidence: dict[str, float], signal_z: float, attribution_z:
     vs_wheels = 0.0 if wheels_abnormal else 1.0
     yaw_rest, yaw_wheels, yaw_gain = e("yaw"), vs_wheels * e("yaw_vs_wheels"), e("yaw_gain")
     yaw_own = max(yaw_rest, yaw_wheels, yaw_gain)
-    steer_own = vs_wheels * e("steering_vs_wheels")
+    # a tyre cannot move the steering centre (TYRE_PROOF), but with a ratio abnormal only its
+    # change (``changed``) counts: its level against the peers is also the vehicle's alignment
+    steer_own = e("steering_vs_wheels") if not wheels_abnormal or "steering_angle_sensor" in changed else 0.0
     # 2-out-of-3 vote: yaw-versus-steering blames the yaw sensor only when the
     # yaw sensor also disagrees with an independent source (rest or wheels).
     shared = e("steering_vs_yaw")

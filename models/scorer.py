@@ -57,7 +57,7 @@ import numpy as np
 import pandas as pd
 
 from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, residuals_of,
-                                suggestion_for)
+                                suggestion_for, tyre_moves)
 from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
@@ -421,7 +421,7 @@ class FleetScorer:
         exceed ``sole`` (in units of h; the drift alarm's sole_cusum_h_ / h, see module doc)."""
         names = self.statistics_ if names is None else names
         col = {s: j for j, s in enumerate(names)}
-        gated = np.where(np.array(["_vs_wheels" in c for c in names])[None, :] & ~wheels_agree[:, None],
+        gated = np.where(np.array([tyre_moves(c) for c in names])[None, :] & ~wheels_agree[:, None],
                          0.0, strength)
         out = {}
         for component, modes in COMPONENT_RESIDUALS.items():
@@ -669,7 +669,7 @@ def _alarm_kind(statistic: str) -> str:
     """``ratio`` (a tyre as likely as a sensor), ``vs_wheels`` (a tyre moves it too), else ``sensor``."""
     if statistic.startswith("wheel_ratio_"):
         return "ratio"
-    return "vs_wheels" if "_vs_wheels" in statistic else "sensor"
+    return "vs_wheels" if tyre_moves(statistic) else "sensor"
 
 
 def _cusum_by_group(u: pd.DataFrame, keys: np.ndarray, k: float) -> tuple[np.ndarray, np.ndarray]:

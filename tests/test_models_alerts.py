@@ -80,7 +80,23 @@ def test_a_steering_centre_change_alone_is_a_steering_sensor_alert_but_a_centre_
     drift = sc._corroborated(centre, np.array([True]), measured=measured)
     peers = sc._corroborated(centre, np.array([True]))
     assert drift["steering_angle_sensor"][0] and not peers["steering_angle_sensor"][0]
-    assert not sc._corroborated(centre, np.array([False]), measured=measured)["steering_angle_sensor"][0]
+    # no tyre moves the steering centre (models.attribution.TYRE_PROOF): an abnormal wheel ratio
+    # does not silence it, while it does silence the lateral level's residual against the wheels
+    assert sc._corroborated(centre, np.array([False]), measured=measured)["steering_angle_sensor"][0]
+    lateral = _strength(accel_lat=1.5, accel_lat_vs_wheels=1.5)
+    assert sc._corroborated(lateral, np.array([True]))["accel_lat_sensor"][0]
+    assert not sc._corroborated(lateral, np.array([False]))["accel_lat_sensor"][0]
+
+
+def test_a_steering_centre_change_is_not_taken_for_a_tyre_changed_in_the_same_weeks():
+    # tuning seed 202 (36 vehicles): a seasonal tyre swap moved the ratios while the centre drifted
+    from models.attribution import choose_component
+    evidence = {"wheel_ratio_rr": 14.0, "steering_vs_wheels": 26.0}
+    assert choose_component(evidence, 4.0, 4.0, changed={"steering_angle_sensor"})[0] == "steering_angle_sensor"
+    # a centre level against the peers alone is the vehicle's alignment: the tyre explains the ratio
+    assert choose_component(evidence, 4.0, 4.0)[0] == "tyre_rr"
+    # without an abnormal ratio the centre names the sensor as before
+    assert choose_component({"steering_vs_wheels": 26.0}, 4.0, 4.0)[0] == "steering_angle_sensor"
 
 
 def test_witnesses_must_share_the_fault_mode_a_yaw_offset_is_not_confirmed_by_yaw_against_steering():

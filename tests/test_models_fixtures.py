@@ -98,8 +98,10 @@ def _apply_fault(r: dict, f: Fault, day: int, dist: float, rng: np.random.Genera
         r[f"wheel_ratio_{f.position}_pct"] -= 0.4 * min(1.0, s * 3)
         if f.position in ("rl", "rr"):
             sign = 1 if f.position == "rl" else -1
+            # the intercept against the rear wheels moves; the steering centre does not: it is taken
+            # where the yaw sensor and the wheels' trip-centred vote agree on straight road
+            # (features/windows.py), so a radius change cannot shift it (models.attribution.TYRE_PROOF)
             r["yaw_offset_dps"] += sign * 0.5 * min(1.0, s * 3)
-            r["steer_center_deg"] += sign * 2.0 * min(1.0, s * 3)
     elif f.kind == "yaw_sensor":
         if not np.isnan(r["yaw_rest_dps"]):
             r["yaw_rest_dps"] += 0.8 * s
