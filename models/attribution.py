@@ -14,7 +14,8 @@ residuals compare a sensor *with the wheels*. So:
    which no tyre can move (a level at rest, yaw against steering), changed together:
    a tyre changed on a vehicle whose yaw sensor fails does not hide the yaw sensor.
 3. Else the non-wheel sources, where a "versus wheels" residual counts only
-   when no wheel is abnormal (otherwise the wheel explains it), and the
+   when no wheel is abnormal (otherwise the wheel explains it; not the
+   steering centre, which no tyre moves: TYRE_PROOF), and the
    steering-versus-yaw residual goes to whichever of the two the other
    residuals implicate.
 """
