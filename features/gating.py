@@ -218,9 +218,13 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     for pos in POSITIONS:
         own = f"wheel_speed_{pos}"
         gates[f"wheel_ratio_{pos}_pct"] = [Gate("averaged", ((own, 100.0 / v),), 0.1, average_s=None)]
-        # the spread of a 2 s high-pass
+        # the spread of a 2 s high-pass, at a bus logger's rate: below POLLED_BELOW_HZ a logger reads the
+        # four wheels one after another, 50-300 ms apart (DESIGN.md), and on a rough road a wheel's speed
+        # moves about as much within that time as a damaged ring's jitter (0.3-0.6 % against 0.5-0.8 %,
+        # tests/test_features_fault_matrix_loggers.py); a log without read-lag columns cannot undo it
         gates[f"wheel_jitter_{pos}_pct"] = [Gate("spread", ((own, 100.0 / v),), JITTER_MAX_QUANT_PCT,
-                                                 min_fresh_hz=FILTER_MIN_VALUES / JITTER_HIGHPASS_S)]
+                                                 min_fresh_hz=max(POLLED_BELOW_HZ,
+                                                                  FILTER_MIN_VALUES / JITTER_HIGHPASS_S))]
         # a wheel reads zero below 0.3 m/s: one step must leave that distinguishable
         gates[f"wheel_dropouts_{pos}"] = [Gate("held", ((own, 1.0),), DROPOUT_ZERO_MPS / 2.0)]
         gates[f"wheel_accel_disagree_{pos}_g"] = [

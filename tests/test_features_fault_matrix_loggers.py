@@ -154,16 +154,7 @@ def matrix_problems(logger: tuple, case: str) -> list[str]:
     return problems
 
 
-JITTER_MARGIN_BUG = pytest.mark.xfail(strict=True, reason=(
-    "features.wheels.wheel_jitter_features (and its gate in features.gating, which weighs quantisation only): "
-    "a polled logger reads each wheel at its own lag (50-300 ms, +-50 ms a row), so a rough road's wheel motion "
-    "reads as jitter: healthy rough-road jitter 0.29-0.65 % at 5 Hz even in 0.01 km/h steps (bus capture at "
-    "the same 5 Hz: 0.18-0.20 %); a severity-1 tone ring adds 0.5-0.8 %, under MARGIN x that healthy spread. "
-    "wheel_accel_disagree still pins the fault to its wheel"))
-
-
-@pytest.mark.parametrize("case", [pytest.param(c, marks=JITTER_MARGIN_BUG) if c.startswith("tone_ring") else c
-                                  for c in CASES])
+@pytest.mark.parametrize("case", CASES)
 def test_polled_fault_moves_what_the_log_carries_pinned_to_its_wheel_and_nothing_else(case):
     problems = matrix_problems(POLLED_FINE, case)
     assert not problems, "\n".join(problems)
