@@ -20,10 +20,11 @@ the same seeds; figures are pooled per configuration, and per logger kind
 smaller fleets or one configuration, e.g. ``--seeds 101 --vehicles 16 --days 21
 --configs default``; report the full default run.
 
-Service events: the simulator writes service_history.csv, but no stage
-publishes a ``service_events`` table yet (ingest owns the raw inputs). With
-``--service`` this script publishes it into the store as a stand-in, and the
-figures are reported both without and with it.
+Service events: the simulator writes service_history.csv; by default the
+benchmark does not publish it, as for a fleet that keeps no service records
+(the harder case: unrecorded tyre work looks like a ratio change). With
+``--service`` it is published into the store too, and the figures are reported both without
+and with it.
 """
 
 from __future__ import annotations
