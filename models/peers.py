@@ -123,12 +123,20 @@ def _median_mad(values: np.ndarray, min_count: int) -> tuple[np.ndarray, np.ndar
     return np.where(enough, med, np.nan), np.where(enough, MAD_TO_SIGMA * mad, np.nan)
 
 
+#: A feature's peer statistics need this many vehicles (other than the one scored) that measure it:
+#: a polled group may hold five vehicles of which two measure the steering centre, and the median of
+#: one other vehicle is that vehicle's own level, not a peer norm. Below it the feature has no peer
+#: z-score (NaN); the vehicle's own drift still watches it.
+MIN_FEATURE_PEERS = 3
+
+
 def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: float, min_ref_trips: int) -> pd.DataFrame:
     """Centre and scale per (peer_group, vehicle_id), leaving that vehicle out.
 
     Row ``vehicle_id == "*"`` holds the whole group's statistics, for a
     vehicle the reference never saw. Columns: ``center__<f>``, ``scale__<f>``,
-    ``n_ref_vehicles``.
+    ``n_ref_vehicles``. A feature measured by fewer than MIN_FEATURE_PEERS
+    vehicles (leaving the scored one out) gets NaN statistics.
     """
     fleet_values = reference[features].to_numpy(dtype=float)
     _, fleet_scale = _median_mad(fleet_values, 1)
@@ -145,12 +153,18 @@ def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: flo
             floors_g = np.fmax(floors, np.nan_to_num(between.loc[cls].to_numpy(dtype=float), nan=0.0))
         else:
             floors_g = floors
+        measured = pd.DataFrame(~np.isnan(values)).groupby(vehicles).any()  # vehicle × feature
+        n_measuring = measured.sum(axis=0).to_numpy()
         med, scale = _median_mad(values, min_ref_trips)
-        rows.append((group, "*", med, np.fmax(scale, floors_g), len(set(vehicles))))
+        few = n_measuring < MIN_FEATURE_PEERS
+        rows.append((group, "*", np.where(few, np.nan, med), np.where(few, np.nan, np.fmax(scale, floors_g)),
+                     len(set(vehicles))))
         for vid in pd.unique(vehicles):
             keep = vehicles != vid
             med_v, scale_v = _median_mad(values[keep], min_ref_trips)
-            rows.append((group, vid, med_v, np.fmax(scale_v, floors_g), len(set(vehicles[keep]))))
+            few = n_measuring - measured.loc[vid].to_numpy() < MIN_FEATURE_PEERS
+            rows.append((group, vid, np.where(few, np.nan, med_v), np.where(few, np.nan, np.fmax(scale_v, floors_g)),
+                         len(set(vehicles[keep]))))
     if not rows:
         return pd.DataFrame(columns=["peer_group", "vehicle_id", "n_ref_vehicles"])
     centers = pd.DataFrame(np.vstack([r[2] for r in rows]), columns=[f"center__{f}" for f in features])

@@ -117,3 +117,22 @@ def test_a_healthy_own_level_in_a_small_platform_is_scaled_by_the_class_between_
         return float(z[df["vehicle_id"] == "ODD"].median())
     assert abs(z_of(-0.18)) < 4.0
     assert z_of(1.5) > 8.0
+
+
+def test_a_feature_only_two_vehicles_measure_has_no_peer_score_rather_than_one_vehicles_level():
+    # five vehicles, of which two measure the steering centre (the others' logs cannot): each would
+    # otherwise be scored against the other's level alone
+    rng = np.random.default_rng(3)
+    vals = {f"V{i}": list(rng.normal(0.0, 0.05, 12)) for i in range(5)}
+    df = _fleet(vals)
+    df["steer"] = np.nan
+    df.loc[df["vehicle_id"] == "V0", "steer"] = -1.0
+    df.loc[df["vehicle_id"] == "V1", "steer"] = 0.3
+    df[["peer_group", "peer_fallback"]] = assign_peer_groups(df, min_peer_vehicles=3)
+    stats = peer_statistics(df, ["x", "steer"], rel_floor=0.0, min_ref_trips=5)
+    z = normalise(df, stats, ["x", "steer"])
+    assert z["steer"].isna().all()
+    assert z["x"].notna().all()
+    df.loc[df["vehicle_id"].isin(["V2", "V3"]), "steer"] = 0.0  # four measure it: three peers each
+    z = normalise(df, peer_statistics(df, ["x", "steer"], rel_floor=0.0, min_ref_trips=5), ["x", "steer"])
+    assert z.loc[df["vehicle_id"] == "V0", "steer"].notna().all()
