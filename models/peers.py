@@ -126,8 +126,9 @@ def _median_mad(values: np.ndarray, min_count: int) -> tuple[np.ndarray, np.ndar
 #: A feature's peer statistics need this many vehicles (other than the one scored) that measure it:
 #: a polled group may hold five vehicles of which two measure the steering centre, and the median of
 #: one other vehicle is that vehicle's own level, not a peer norm. Below it the feature has no peer
-#: z-score (NaN); the vehicle's own drift still watches it.
-MIN_FEATURE_PEERS = 3
+#: z-score (NaN); the vehicle's own drift still watches it. (Three lost a yaw-offset vehicle of a
+#: small test fleet whose yaw zero only three vehicles measured: two peers are kept.)
+MIN_FEATURE_PEERS = 2
 
 
 def peer_statistics(reference: pd.DataFrame, features: list[str], rel_floor: float, min_ref_trips: int) -> pd.DataFrame:
