@@ -24,7 +24,7 @@ from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
 from ingest.signs import sign_warnings
 from ingest.skew import MAX_LAG_MS, align
 from ingest.timebase import parse_time
-from ingest.trips import signal_records, smallest_step, trip_bounds, trip_quality
+from ingest.trips import signal_records, smallest_step, trip_bounds, trip_quality, trip_speed
 from tracktrue.ids import trip_id
 from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_UNITS, WHEEL_SPEED_COLUMNS
 
@@ -299,7 +299,9 @@ def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dic
     masks = [np.isnan(values[s]) for s in present if s in values] + [missing[s] for s in present if s in missing]
     if "dtc" in present:
         masks.append(samples.column("dtc").is_null().to_numpy(zero_copy_only=False))
-    quality = trip_quality(us, {s: v for s, v in values.items() if s != "odometer"}, masks)
+    measured = {s: v for s, v in values.items() if s != "odometer"}
+    speed = trip_speed(measured)
+    quality = trip_quality(us, measured, masks, speed)
     odo = values.get("odometer")
     known = odo[np.isfinite(odo)] if odo is not None else np.array([])
     signals = [s for s in present if not (np.isnan(values[s]).all() if s in values else samples.column(s).null_count
@@ -315,6 +317,5 @@ def _trip(samples: pa.Table, tid: str, vehicle: str, us: np.ndarray, values: dic
         "odometer_start_km": float(known[0]) if len(known) else float("nan"),
         "odometer_end_km": float(known[-1]) if len(known) else float("nan"),
     }
-    signal_rows = [{"trip_id": tid, **r} for r in signal_records(us, {s: v for s, v in values.items()
-                                                                      if s != "odometer"}, lags)]
+    signal_rows = [{"trip_id": tid, **r} for r in signal_records(us, measured, lags, speed, quality)]
     return LogTrip(vehicle, tid, samples, info, lines, signal_rows)

@@ -41,14 +41,15 @@ def sign_warnings(values: dict[str, np.ndarray], t_s: np.ndarray) -> list[str]:
                        "positive to the right (ISO 8855 wants left); a profile can set invert = true")
     ay = values.get("accel_lat")
     wheels = [values[k] for k in ("wheel_speed_fl", "wheel_speed_fr", "wheel_speed_rl", "wheel_speed_rr") if k in values]
+    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
+    speed = mean_known(speeds) if speeds else None  # the wheels' mean whenever wheels are logged
     if ay is not None and yaw is not None and wheels:
-        if _correlation(ay, mean_known(wheels) * yaw, min_abs_b=0.5) < INVERTED_BELOW:
+        if _correlation(ay, speed * yaw, min_abs_b=0.5) < INVERTED_BELOW:
             out.append("accel_lat correlates negatively with speed x yaw_rate: one of the two has the opposite "
                        "sign convention (ISO 8855: both positive in a left turn); a profile can set invert = true")
     ax = values.get("accel_long")
-    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
-    if ax is not None and speeds and len(t_s) > 2:
-        if _correlation(ax, _derivative(mean_known(speeds), t_s), min_abs_b=0.3) < INVERTED_BELOW:
+    if ax is not None and speed is not None and len(t_s) > 2:
+        if _correlation(ax, _derivative(speed, t_s), min_abs_b=0.3) < INVERTED_BELOW:
             out.append("accel_long correlates negatively with the wheel speeds' dv/dt: it looks positive in "
                        "deceleration (ISO 8855 wants forward); a profile can set invert = true")
     return out

@@ -25,7 +25,16 @@ def trip_bounds(codes: np.ndarray, us: np.ndarray, gap_s: float) -> list[tuple[i
     return list(zip(edges[:-1].tolist(), edges[1:].tolist()))
 
 
-def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np.ndarray]) -> dict:
+def trip_speed(values: dict[str, np.ndarray]) -> np.ndarray | None:
+    """Per-sample mean of the known wheel speeds, else the vehicle speed; None when neither is logged
+    (shared by trip_quality and signal_records, which would otherwise each compute it)."""
+    wheels = [values[c] for c in WHEEL_SPEED_COLUMNS if c in values]
+    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
+    return mean_known(speeds) if speeds else None
+
+
+def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np.ndarray],
+                 speed: np.ndarray | None) -> dict:
     """Distance, sample rate, missing fraction and per-signal resolution of one trip.
 
     * distance_km: trapezoidal integral of the mean of the available wheel
@@ -38,12 +47,9 @@ def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np
       values (SI units), NaN where the signal is absent or never changes.
     """
     t = (us - us[0]) / 1e6
-    wheels = [values[c] for c in WHEEL_SPEED_COLUMNS if c in values]
-    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
     distance_km = float("nan")
-    if speeds:
-        mean = mean_known(speeds)
-        seg = 0.5 * (mean[1:] + mean[:-1]) * np.diff(t)
+    if speed is not None:
+        seg = 0.5 * (speed[1:] + speed[:-1]) * np.diff(t)
         distance_km = float(np.nansum(seg) / 1000.0)
     dt = np.diff(t)
     rate = float(np.median(1.0 / dt)) if len(dt) else float("nan")
@@ -69,7 +75,8 @@ def smallest_step(v: np.ndarray) -> float:
     return float(steps.min()) if len(steps) else float("nan")
 
 
-def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str, np.ndarray]) -> list[dict]:
+def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str, np.ndarray],
+                   speed: np.ndarray | None, quality: dict) -> list[dict]:
     """One ``trip_signals`` row per canonical numeric signal of one trip, from its values as logged.
 
     rate_hz and stale_frac as tracktrue.signal_quality.fresh_rate measures them
@@ -80,11 +87,9 @@ def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str
     or whose cells are all empty, has present False and NaN figures.
     """
     t = (us - us[0]) / 1e6
-    wheels = [values[c] for c in WHEEL_SPEED_COLUMNS if c in values]
-    speeds = wheels or ([values["vehicle_speed"]] if "vehicle_speed" in values else [])
-    if speeds:
+    if speed is not None:
         with np.errstate(invalid="ignore"):
-            moving = mean_known(speeds) >= MOVING_MPS
+            moving = speed >= MOVING_MPS
     else:
         moving = np.ones(t.size, bool)
     seconds = moving_seconds(t, moving)
@@ -96,6 +101,6 @@ def signal_records(us: np.ndarray, values: dict[str, np.ndarray], lags: dict[str
         lag = lags.get(sig)
         known_lag = lag[np.isfinite(lag)] if lag is not None else np.array([])
         rows.append({"signal": sig, "present": present, "rate_hz": rate,
-                     "step_si": smallest_step(v) if present else float("nan"), "stale_frac": stale,
+                     "step_si": quality[f"resolution_{sig}"] if present else float("nan"), "stale_frac": stale,
                      "read_lag_s": float(np.median(known_lag)) / 1000.0 if known_lag.size else float("nan")})
     return rows
