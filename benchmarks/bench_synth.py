@@ -54,7 +54,7 @@ def _trips(n_trips: int, duration_s: float, per_pass: int = 8):
     start = pd.Timestamp("2026-03-02T07:00:00Z")
     return [simulate_trips(platform("lwb_van"), health, [TripCondition(fault="tone_ring_fl", severity=1.0)] * len(ks),
                            vehicle_id="BENCH-1", starts=[start] * len(ks), drives=["mixed"] * len(ks),
-                           durations_s=[duration_s] * len(ks), fleet_rate_hz=10.0, logger=LOGGERS["bus"],
+                           durations_s=[duration_s] * len(ks), fleet_rate_hz=10.0, logger=LOGGERS["bus_capture"],
                            rngs=[np.random.default_rng([1, i]) for i in ks])
             for ks in np.array_split(np.arange(n_trips), -(-n_trips // per_pass))]
 

@@ -61,8 +61,6 @@ LOGGERS: dict[str, LoggerProfile] = {
                                 wheel_step_kph=1.0,
                                 signals=frozenset({"vehicle_speed", "lamp_abs", "lamp_esc", "dtc"})),
 }
-#: The bus logger's earlier name, for callers that still use it.
-LOGGERS["bus"] = LOGGERS["bus_capture"]
 
 
 def logger_rate_hz(profile: LoggerProfile, fleet_rate_hz: float) -> float:

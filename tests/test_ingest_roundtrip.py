@@ -45,7 +45,7 @@ def _stored_with_source_rows(result, path):
     return pd.concat(frames, ignore_index=True)
 
 
-@pytest.mark.parametrize("logger", ["bus", "polled"])
+@pytest.mark.parametrize("logger", ["bus_capture", "polled"])
 @pytest.mark.parametrize("style_name", sorted(export.STYLES))
 def test_every_export_style_round_trips_within_the_logged_resolution(tmp_path, style_name, logger):
     sim, style, path, vin = _export(tmp_path, style_name, logger, analog=False)
@@ -77,7 +77,7 @@ def test_every_export_style_round_trips_within_the_logged_resolution(tmp_path, s
 
 @pytest.mark.parametrize("style_name", sorted(export.STYLES))
 def test_analog_accelerometer_voltages_round_trip_through_a_profile(tmp_path, style_name):
-    sim, style, path, _ = _export(tmp_path, style_name, "bus", analog=True)
+    sim, style, path, _ = _export(tmp_path, style_name, "bus_capture", analog=True)
     lines = []
     for si_col, v_col in zip((style.column("accel_long"), style.column("accel_lat")), style.analog_columns):
         lines += [f'[columns."{si_col.header}"]', 'signal = "ignore"',
