@@ -19,10 +19,10 @@ from scipy.signal import savgol_coeffs
 
 from features.columns import SampleColumns, sample_columns
 from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
+from tracktrue.signal_quality import GAP_PERIODS
 
-#: A step longer than this many nominal sample periods is a gap: integration
-#: does not bridge it and derivatives are not taken across it.
-GAP_PERIODS = 2.5
+# GAP_PERIODS (tracktrue.signal_quality, shared with ingest): a step longer than that many
+# nominal sample periods is a gap: integration does not bridge it and derivatives are not taken across it.
 #: Comparisons of yaw, steering and lateral acceleration run on 1 s means, so
 #: one sample's noise is not taken for a turn.
 SMOOTH_S = 1.0

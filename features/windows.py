@@ -34,6 +34,7 @@ from features.signals import (
     window_samples,
 )
 from features.spec import VehicleSpec
+from tracktrue.signal_quality import MOVING_MPS
 from tracktrue.units import DEG_RAD
 
 STANDSTILL_SPEED_MPS = 0.1
@@ -45,7 +46,7 @@ STANDSTILL_SETTLE_S = 1.0
 #: already shakes it by a few tenths of m/s².
 STANDSTILL_YAW_STD_RADPS = 0.6 * DEG_RAD
 STANDSTILL_ACCEL_STD_MPS2 = 0.6
-MOVING_SPEED_MPS = 3.0
+MOVING_SPEED_MPS = MOVING_MPS  # DESIGN.md's "moving" (tracktrue.signal_quality, shared with the gates)
 #: A wheel below this while others roll is read as zero (a dropout), not as slow.
 DROPOUT_ZERO_MPS = 0.3
 CRUISE_SPEED_MPS = 8.0

@@ -27,8 +27,10 @@ from __future__ import annotations
 
 import numpy as np
 
-#: Reads further apart than this many median read spacings are not interpolated between.
-GAP_PERIODS = 2.5
+# Reads further apart than GAP_PERIODS median read spacings are not interpolated between
+# (the one gap rule of tracktrue.signal_quality, which features/ also uses).
+from tracktrue.signal_quality import GAP_PERIODS
+
 #: A lag outside 0..MAX_LAG_MS is a rejected row (a read cannot follow its row, nor lag it by a minute).
 MAX_LAG_MS = 60_000.0
 
