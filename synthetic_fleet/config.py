@@ -79,7 +79,7 @@ DEFAULT = SimConfig(
 HELD_OUT = SimConfig(
     name="held-out",
     polled_share=0.30, telematics_share=0.12,
-    bus_rate_factor=1.5, bus_wheel_step_kph=0.03125,  # 1/32 km/h, a common bus scaling
+    bus_rate_factor=1.5, bus_wheel_step_kph=0.03125,  # 1/32 km/h per bit, a bus scaling (from memory)
     polled_rates_hz=(1.0, 4.0), polled_wheel_steps_kph=(0.25, 1.0), polled_stale_prob=0.05,
     telematics_rate_hz=1.0,
     wheel_module=WheelModule(method="period", tick_s=0.02, window_s=0.04, timeout_s=0.3),

@@ -55,7 +55,8 @@ def test_counted_teeth_give_the_true_speed_within_one_tooth_per_window():
 
 
 def test_timed_tooth_edges_give_the_true_speed_of_a_perfect_ring():
-    # Angle over time between the first and the last edge of the window: exact at a constant speed.
+    # Kinematics (v = r·Δθ/Δt): the angle between the first and the last edge of the window over the
+    # time between them is exact at a constant speed.
     got = _ring_speeds(np.full(3000, 17.3), WheelModule(), rate_hz=50.0)
     assert np.all(got[:, 5:] == pytest.approx(17.3, rel=1e-9))
 
@@ -69,14 +70,17 @@ def test_a_broken_tooth_spikes_its_own_wheel_only():
     healthy = np.delete(got, 1, axis=0)[:, 5:]
     assert np.all(healthy == pytest.approx(12.0, rel=1e-9))
     rel = got[1, 5:] / 12.0 - 1.0
-    # about 5 edges per 20 ms window: a missing edge reads 1 tooth in 5 slow, a late one 0.3 in 4 fast
+    # Kinematics: one pitch is 2πr/N = 45.8 mm of travel, so at 12 m/s about 5 edges fall in a 20 ms
+    # window; a missing edge reads about 1 tooth in 5 slow, one 0.3 pitch late about 0.3 in 4 fast.
+    # The bounds below are looser than those figures (design choice).
     assert rel.min() < -0.1 and rel.max() > 0.05
     assert 0.05 < np.mean(np.abs(rel) > 0.02) < 0.6  # spikes, not a steady error
 
 
 def test_passive_sensors_read_nothing_below_a_few_kph_and_active_ones_read_walking_pace():
     # Common practice: an inductive (passive) sensor's amplitude grows with speed, so it reads 0
-    # below a few km/h; a powered (active) sensor reads down to walking pace.
+    # below a few km/h; a powered (active) sensor reads down to walking pace. The 0.8 m/s and
+    # 0.1 m/s cutoffs are our model's choices (sensors.CUTOFF_MPS), not measured values.
     assert platform("lwb_van").wheel_sensor_kind == "passive" and platform("compact_van").wheel_sensor_kind == "active"
     passive, _ = trip_samples("lwb_van", drive="town", duration_s=600, seed=4)
     active, _ = trip_samples("compact_van", drive="town", duration_s=600, seed=4)
@@ -119,6 +123,7 @@ def _export(tmp_path, logger_kind: str, style: str):
 
 
 def test_polled_style_a_logs_carry_each_cells_read_lag_of_50_to_300_ms(tmp_path):
+    # 50-300 ms and the " @ms" column are our polled logger's design (DESIGN.md "Logger kinds").
     sim, header, rows = _export(tmp_path, "polled", "A")
     assert header[header.index("Wheel Speed FL [km/h]") + 1] == "Wheel Speed FL @ms"
     assert header[header.index("Yaw Rate [deg/s]") + 1] == "Yaw Rate @ms"
@@ -138,7 +143,8 @@ def test_polled_cells_hold_the_value_read_at_their_lag():
     sim = simulate_trip(platform("pickup"), SensorHealth.draw(rng), TripCondition(), vehicle_id="P-1", start=START,
                         drive="suburban", duration_s=300.0, fleet_rate_hz=10.0, logger=profile, rng=rng)
     # A cell read later (smaller lag) sees the wheel later: over a steady acceleration the later read is
-    # faster by a·Δt. The four wheels move together, so their differences follow their lags.
+    # faster by a·Δt (kinematics, v(t + Δt) ≈ v(t) + a·Δt). The four wheels move together, so their
+    # differences follow their lags. The 0.5 correlation floor is a design choice.
     once = np.r_[True, np.diff(sim.time_ms) > 0]  # a duplicated row is the same reading again
     w = np.array([sim.columns[c][once] for c in WHEEL_SPEED_COLUMNS])
     lag_s = np.array([sim.read_lag_ms[c][once] for c in WHEEL_SPEED_COLUMNS]) / 1000.0
@@ -150,6 +156,7 @@ def test_polled_cells_hold_the_value_read_at_their_lag():
 
 
 def test_telematics_logs_carry_vehicle_speed_lamps_and_codes_only(tmp_path):
+    # The headers are our own export format (export.py); the signal set is our telematics design.
     _, header, rows = _export(tmp_path, "telematics", "A")
     assert header == ["VIN", "Timestamp", "Vehicle Speed [km/h]", "ABS Lamp", "ESC Lamp", "DTC"]
     _, header_b, _ = _export(tmp_path, "telematics", "B")
@@ -170,6 +177,8 @@ def test_trip_samples_logs_each_logger_kind():
 
 
 def test_esc_interventions_and_esc_off_light_the_esc_lamp_without_a_code():
+    # Common practice: the ESC lamp flashes while the system intervenes and stays lit while ESC is
+    # switched off, with no trouble code stored. The times below are this test's own choice.
     rng = np.random.default_rng(5)
     cond = TripCondition(esc_flashes=((100.0, 103.0),), esc_off_from_s=200.0)
     sim = simulate_trip(platform("lwb_van"), SensorHealth.draw(rng), cond, vehicle_id="L-1", start=START,
@@ -182,6 +191,8 @@ def test_esc_interventions_and_esc_off_light_the_esc_lamp_without_a_code():
 
 
 def test_an_intermittent_sensor_stores_its_code_and_the_lamp_goes_out_at_the_next_key_cycle():
+    # Common practice: a wheel-speed fault lights the lamp until the ignition is cycled; a fault not
+    # seen again after the self-test leaves the lamp out, its code stored. The code text is our own (TT-).
     rng = np.random.default_rng(6)
     health = SensorHealth.draw(rng)
     burst = TripCondition(fault="air_gap_fl", severity=1.0, growth="intermittent", dropout_bursts=((150.0, 152.0),),
@@ -207,6 +218,7 @@ def test_lamp_episodes_follow_the_lamp_semantics(config):
     episodes = lamp_episodes(plan)
     assert {"intervention", "esc_off"} <= set(episodes.kind)
     flashes = episodes[episodes.kind == "intervention"]
+    # 1.5-5 s per intervention is our simulator's choice (fleet._lamp_without_fault)
     assert ((flashes.to_s - flashes.from_s).between(1.5, 5.0)).all()  # a few seconds
     assert episodes[episodes.kind != "intervention"].to_s.isna().all()  # until the key is off
     growth = {v.vehicle_id: v.fault.growth for v in plan.vehicles if v.fault}
@@ -220,6 +232,8 @@ def test_lamp_episodes_follow_the_lamp_semantics(config):
 
 
 def test_sudden_and_intermittent_faults_are_marked_and_show_nothing_before():
+    # Common practice: an active (powered) sensor does not fade with a widening air gap; it works
+    # until it fails, for good or intermittently. Sudden/intermittent growth is only drawn for those.
     seen = set()
     for seed in (1, 2, 3, 7):
         plan = plan_fleet(24, 40, seed=seed)
@@ -235,6 +249,7 @@ def test_sudden_and_intermittent_faults_are_marked_and_show_nothing_before():
 
 
 def test_the_demo_fleet_has_every_logger_kind_and_both_sensor_fault_growths():
+    # The counts follow from config.DEFAULT's shares (design choices), not from any real fleet.
     plan = plan_fleet(DEMO_VEHICLES, DEMO_DAYS, seed=7)
     kinds = pd.Series([v.logger.name for v in plan.vehicles]).value_counts()
     assert set(kinds.index) == set(LOGGER_KINDS)
