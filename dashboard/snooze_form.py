@@ -7,7 +7,7 @@ import datetime as dt
 import pandas as pd
 import streamlit as st
 
-from dashboard.snoozes import clear_snooze, read_snoozes, snooze_vehicle
+from dashboard.snoozes import SNOOZABLE, clear_snooze, read_snoozes, snooze_vehicle
 from tracktrue.errors import UserError
 from tracktrue.store import Store
 
@@ -33,6 +33,9 @@ def snooze_section(store: Store, row: pd.Series, key: str) -> None:
             st.rerun()
     if row["status"] == "lamp_lit":
         st.caption("A vehicle with a lit ABS/ESC lamp needs service whatever its rank: it cannot be snoozed.")
+        return
+    if row["status"] not in (*SNOOZABLE, "snoozed"):
+        st.caption("Only a vehicle with a watch or inspect alert can be snoozed.")
         return
     as_of = pd.Timestamp(row["as_of"]).date() if pd.notna(row.get("as_of")) else dt.date.today()
     with st.form(f"{key}_form", clear_on_submit=True):

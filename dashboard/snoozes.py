@@ -20,6 +20,9 @@ from tracktrue.errors import UserError
 from tracktrue.schema import SNOOZE_COLUMNS
 from tracktrue.store import Store
 
+#: The statuses a snooze can put off (models/stability.py shows only these as ``snoozed``).
+SNOOZABLE = frozenset({"watch", "inspect"})
+
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS snoozes (
     vehicle_id TEXT PRIMARY KEY,
@@ -37,8 +40,10 @@ def snooze_vehicle(store: Store, vehicle_id: str, until: dt.date, reason: str) -
 
     The vehicle's status and component now are kept: a lit lamp, a higher
     status or another component later cancels the snooze. A lamp_lit vehicle
-    cannot be snoozed (DESIGN.md, "Safety"). A new snooze replaces the
-    vehicle's earlier one.
+    cannot be snoozed (DESIGN.md, "Safety"), and a vehicle without an alert
+    (ok, verifying, too few trips) has nothing to put off: a snooze of it
+    would be stored and never shown. A new snooze replaces the vehicle's
+    earlier one.
     """
     reason = reason.strip()
     if not reason:
@@ -52,6 +57,9 @@ def snooze_vehicle(store: Store, vehicle_id: str, until: dt.date, reason: str) -
         raise UserError(f"{vehicle_id} has a lit ABS/ESC warning lamp: it needs service whatever its rank and "
                         "cannot be snoozed")
     status = row.get("held_status", row["status"]) if row["status"] == "snoozed" else row["status"]
+    if status not in SNOOZABLE:
+        raise UserError(f"{vehicle_id} has no alert to put off (status {row['status']}): only a watch or inspect "
+                        "vehicle can be snoozed")
     stored = {"vehicle_id": vehicle_id, "until": until.isoformat(), "reason": reason, "snoozed_status": status,
               "snoozed_component": row["suspected_component"] or "none",
               "created_at": dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")}

@@ -67,6 +67,7 @@ def test_a_snooze_is_stored_with_its_reason_expiry_and_the_alert_it_puts_off(sto
     (["VAN-01", "--until", "2026-03-27", "--reason", "  "], "needs a reason"),
     (["VAN-01", "--until", "2026-03-27"], "needs --until DATE and --reason TEXT"),
     (["VAN-09", "--until", "2026-03-27", "--reason", "x"], "unknown vehicle 'VAN-09'"),
+    (["VAN-03", "--until", "2026-03-27", "--reason", "x"], "no alert to put off (status ok)"),
     (["VAN-01", "--clear", "--reason", "x"], "--clear takes no"),
 ])
 def test_a_snooze_that_cannot_be_made_is_refused_with_the_reason(store, capsys, args, message):
@@ -114,6 +115,12 @@ def test_the_vehicle_record_snoozes_and_clears_in_the_same_store_as_the_command(
 def test_the_vehicle_record_offers_no_snooze_for_a_lit_lamp(store, monkeypatch):
     at = vehicle_page(store, monkeypatch, "VAN-02")
     assert "cannot be snoozed" in "\n".join(c.value for c in at.caption)
+    assert not [b for b in at.button if b.key and b.key.startswith("FormSubmitter:vehicle_snooze_form")]
+
+
+def test_the_vehicle_record_offers_no_snooze_for_a_vehicle_without_an_alert(store, monkeypatch):
+    at = vehicle_page(store, monkeypatch, "VAN-03")
+    assert "Only a vehicle with a watch or inspect alert can be snoozed." in "\n".join(c.value for c in at.caption)
     assert not [b for b in at.button if b.key and b.key.startswith("FormSubmitter:vehicle_snooze_form")]
 
 
