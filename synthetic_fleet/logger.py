@@ -111,6 +111,12 @@ class LoggedRows:
         return logged
 
 
+def _struck_cells(per_trip: list[tuple[np.ndarray, np.ndarray]], starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(signal index, row of all trips' rows) of the cells given per trip as (signal index, row in the trip)."""
+    return (np.concatenate([signal for signal, _ in per_trip]),
+            np.concatenate([row + start for (_, row), start in zip(per_trip, starts)]))
+
+
 def plan_rows(t_s: np.ndarray, trips: Segments, grid_hz: float, profile: LoggerProfile,
               rngs: list[np.random.Generator], names: list[str], row_hz: float | None = None) -> LoggedRows:
     """The rows of the ``trips`` whose samples (on a ``grid_hz`` grid, times ``t_s`` from each trip's
@@ -167,10 +173,8 @@ def plan_rows(t_s: np.ndarray, trips: Segments, grid_hz: float, profile: LoggerP
         jitter = np.clip(profile.jitter_s * jitter, -0.4 * period, 0.4 * period)
         jitter[out.starts] = np.abs(jitter[out.starts])
     time_ms = np.round((t_s[rows] + jitter) * 1000.0).astype(np.int64)
-    stale_signal, stale_row = (np.concatenate([x + out.starts[k] * (j == 1) for k, x in enumerate(xs)])
-                               for j, xs in enumerate(zip(*stale)))
-    missing_signal, missing_row = (np.concatenate([x + out.starts[k] * (j == 1) for k, x in enumerate(xs)])
-                                   for j, xs in enumerate(zip(*missing)))
+    stale_signal, stale_row = _struck_cells(stale, out.starts)
+    missing_signal, missing_row = _struck_cells(missing, out.starts)
     lags = np.concatenate(lags, axis=1) if polled else None  # (signals, rows)
     sources, empty, read_lag_ms = {}, {}, {} if polled else None
     opens_trip = np.zeros(len(rows), dtype=bool)  # a trip's first row has no previous reading to repeat
