@@ -7,7 +7,8 @@ import datetime as dt
 import pandas as pd
 import streamlit as st
 
-from dashboard.snoozes import SNOOZABLE, clear_snooze, read_snoozes, snooze_vehicle
+from dashboard.snoozes import clear_snooze, read_snoozes, snooze_vehicle
+from models.stability import SNOOZABLE
 from tracktrue.errors import UserError
 from tracktrue.store import Store
 

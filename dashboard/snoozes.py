@@ -16,12 +16,10 @@ import datetime as dt
 import pandas as pd
 
 from dashboard.workshop import connect, connect_readonly, has_table
+from models.stability import SNOOZABLE, empty_snoozes
 from tracktrue.errors import UserError
 from tracktrue.schema import SNOOZE_COLUMNS
 from tracktrue.store import Store
-
-#: The statuses a snooze can put off (models/stability.py shows only these as ``snoozed``).
-SNOOZABLE = frozenset({"watch", "inspect"})
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS snoozes (
@@ -81,7 +79,7 @@ def read_snoozes(store: Store) -> pd.DataFrame:
     """Every stored snooze (SNOOZE_COLUMNS; ``until`` a date, ``created_at`` UTC). Never writes."""
     with connect_readonly(store) as con:
         if con is None or not has_table(con, "snoozes"):
-            frame = pd.DataFrame({c: pd.Series(dtype=object) for c in SNOOZE_COLUMNS})
+            frame = empty_snoozes()
         else:
             frame = pd.read_sql_query(f"SELECT {', '.join(SNOOZE_COLUMNS)} FROM snoozes ORDER BY vehicle_id", con)
     frame["until"] = pd.to_datetime(frame["until"]).dt.date

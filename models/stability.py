@@ -58,6 +58,8 @@ LEVEL = {"watch": 1, "inspect": 2, "lamp_lit": 3}
 REPAIR_KINDS = frozenset({"repair", "sensor_replaced", "tone_ring_replaced", "calibration"})
 NO_FAULT_FOUND = "no_fault_found"
 RECURRING = ("inspect", "lamp_lit")
+#: The statuses a snooze puts off (shown as ``snoozed``); ``tracktrue snooze`` refuses any other.
+SNOOZABLE = frozenset({"watch", "inspect"})
 
 
 @dataclass(frozen=True)
@@ -220,7 +222,7 @@ def _snooze(r: dict, snooze: pd.DataFrame, runs: pd.DataFrame) -> None:
         r["status_note"] = _join(f"snooze until {until} cancelled: {why}", r["status_note"])
         return
     r["snoozed_until"], r["snooze_reason"] = until, s["reason"]
-    if r["status"] in ("inspect", "watch"):
+    if r["status"] in SNOOZABLE:
         r["status_note"] = _join(f"snoozed until {until} ({s['reason']}); underneath: {r['status']}",
                                  r["status_note"])
         r["status"] = "snoozed"
