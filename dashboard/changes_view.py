@@ -22,7 +22,7 @@ def changes_section(store: Store) -> None:
     dates = sorted(pd.to_datetime(history["as_of"]).dt.date.unique())
     options = [None, *dates[1:]]
     since = st.selectbox("Compare the last run with", options, key="changes_since",
-                         format_func=lambda d: "the run before it" if d is None else f"the last run as of before {d}")
+                         format_func=lambda d: "the run before it" if d is None else f"the last run as of a day before {d}")
     try:
         changes = run_changes(history, since=since)
     except UserError as exc:

@@ -7,7 +7,7 @@ goes out. A lamp *event* is therefore a lamp (ABS or ESC) that survived a key
 cycle — lit in a trip and lit again *from the first sample* of the next one
 (a warning lamp relights at key-on; ESC-off resets at the key cycle, and an
 intervention flashes mid-trip, so several slippery trips in a row never make
-an event) — or a trouble code in the trip, with the lamp lit or stored while
+an event: common practice of ABS/ESC lamp logic, from memory) — or a trouble code in the trip, with the lamp lit or stored while
 the lamp went out again (an intermittent fault: the on-board monitor has
 already seen it). Interventions and ESC-off are recorded (``lamp_on``), never
 events. Where the lamp state at a trip's start is unknown (no sample store),

@@ -41,6 +41,7 @@ def test_lamp_with_a_trouble_code_is_an_event_at_once():
 
 def test_esc_off_episodes_and_interventions_between_normal_trips_are_never_events():
     # flash (intervention), normal, ESC switched off for one key cycle, normal, flash again
+    # (lamp behaviour: DESIGN.md, "What the lamp means"; common practice)
     ev = _trips([(False, True, ""), (False, False, ""), (False, True, ""), (False, False, ""), (False, True, "")])
     assert ev["lamp_on"].sum() == 3
     assert not ev["lamp_event"].any()
@@ -80,6 +81,7 @@ def test_interventions_on_consecutive_slippery_trips_are_no_event_a_lamp_relit_a
     # the ESC lamp flashes mid-trip on three trips in a row (never lit at a trip's first sample)
     flashes = _trips([(False, True, "")] * 3, at_start=[False, False, False])
     assert not flashes["lamp_event"].any()
-    # a warning lamp is relit at key-on: lit from the first sample of the trip after a lit trip
+    # a warning lamp is relit at key-on (common practice, from memory): lit from the first sample
+    # of the trip after a lit trip
     fault = _trips([(False, False, ""), (True, True, ""), (True, True, "")], at_start=[False, False, True])
     assert fault["lamp_event"].tolist() == [False, False, True]
