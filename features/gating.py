@@ -76,7 +76,7 @@ from features.wheels import AXLE_AGREE_RADPS, JITTER_HIGHPASS_S, JITTER_MAX_QUAN
 from features.windows import DROPOUT_ZERO_MPS, STRAIGHT_YAW_RADPS
 from features.yaw import STEER_TURN_MIN_RADPS, STEER_TURN_MIN_S, YAW_FIT_MIN_S, YAW_GAIN_MIN_TURN_S
 from tracktrue.schema import POSITIONS, WHEEL_SPEED_COLUMNS
-from tracktrue.signal_quality import MOVING_MPS, fresh_rate
+from tracktrue.signal_quality import MOVING_MPS, fresh_rate, moving_seconds
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
 
 #: Columns the gates add to a trip's row.
@@ -145,15 +145,9 @@ class Gate:
         return None
 
 
-def signal_figures(trip: TripArrays, moving: np.ndarray) -> dict[str, Figures]:
-    """Figures of every numeric signal the trip logs, over its ``moving`` samples (all if none moves).
-
-    The moving time is Σ dt of the moving samples (TripArrays.dt caps a gap at one
-    median step, as tracktrue.signal_quality.moving_seconds does).
-    """
-    if not moving.any():
-        moving = np.ones(trip.n, bool)
-    seconds = float(trip.dt[moving].sum())
+def signal_figures(trip: TripArrays, moving: np.ndarray, seconds: float) -> dict[str, Figures]:
+    """Figures of every numeric signal the trip logs, over its ``moving`` samples and their
+    ``seconds`` (tracktrue.signal_quality.moving_seconds, as ingest's trip_signals measures them)."""
     duration = float(trip.dt.sum())
     out = {}
     for name in trip.resolution:
@@ -260,9 +254,11 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
     """Apply every feature's gates to ``row`` (module docstring); returns the GATING_COLUMNS."""
     speed = _moving_speed(trip)
     moving = speed >= MOVING_MPS
-    figures = signal_figures(trip, moving)
-    moving_s = float(trip.dt[moving].sum())
     gates = feature_gates(spec, median(speed[moving]) if moving.any() else FALLBACK_SPEED_MPS)
+    if not moving.any():  # a trip that never moves: its figures over all its samples
+        moving = np.ones(trip.n, bool)
+    moving_s = moving_seconds(trip.t, moving)
+    figures = signal_figures(trip, moving, moving_s)
     for name, checks in gates.items():
         if name not in row.values:
             continue
