@@ -9,8 +9,8 @@ across a 1.5 m track is 10 deg/s of wheel-derived yaw), and a healthy
 vehicle's wrong feature becomes a false alarm. So every feature that came out
 finite is checked against the figures of the signals it uses, measured on
 this trip's samples (tracktrue.signal_quality.fresh_rate, and the smallest
-step of features.signals): q the step, f the fresh values per second while
-moving, s the share of stale repeats.
+step of features.signals' TripArrays.resolution): q the step, f the fresh
+values per second while moving, s the share of stale repeats.
 
 Noise model (Bennett 1948; Widrow & Kollár, *Quantization Noise*, 2008): a
 signal quantised with step q that moves across steps carries an error

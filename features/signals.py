@@ -124,20 +124,15 @@ def trip_arrays(samples: pd.DataFrame | SampleColumns) -> TripArrays:
                       finite=finite)
 
 
-def smallest_step(values: np.ndarray) -> float:
-    """Smallest non-zero change between consecutive samples: the logger's resolution.
+def _smallest_known_step(known: np.ndarray) -> float:
+    """Smallest non-zero change between consecutive values of a trace without missing values: the
+    logger's resolution (TripArrays.resolution).
 
     A slowly varying quantised signal steps by one quantum somewhere in any
     trip, so this finds the quantum without sorting. Rounded to 1e-9 first so
     float noise from unit conversion is not taken for a finer step. NaN if the
     signal never changes.
     """
-    finite = np.isfinite(values)
-    return _smallest_known_step(values if finite.all() else values[finite])
-
-
-def _smallest_known_step(known: np.ndarray) -> float:
-    """``smallest_step`` of a trace without missing values."""
     steps = np.diff(known)
     np.abs(steps, out=steps)
     # rounding is monotonic, so the smallest step that survives rounding is the

@@ -15,7 +15,11 @@ samples as stored), so both stages mean the same thing by "rate" and
   previous known value exactly.
 
 The logger's resolution (smallest non-zero step) is measured by
-``ingest.trips`` and ``features.signals.smallest_step`` as before.
+``ingest.trips.smallest_step`` and features.signals (TripArrays.resolution)
+as before: ingest's is exact, because ingest/skew.py snaps aligned values to
+the logged grid with it (a step rounded to 1e-9 would drift off that grid by
+up to 5e-10 per step and leave false sub-step changes); the features' is
+rounded to 1e-9 so unit-conversion noise is not read as a finer step.
 """
 
 from __future__ import annotations
