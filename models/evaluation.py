@@ -137,7 +137,7 @@ def read_truth(path: Path) -> pd.DataFrame:
         if col == "onset_date" and parsed.isna().any():
             row = int(np.flatnonzero(parsed.isna().to_numpy())[0]) + 2
             raise UserError(f"{path}, line {row}: onset_date is empty")
-        df[col] = parsed.dt.date
+        df[col] = parsed.dt.date.astype(object)  # an all-empty column would stay datetime64 (pandas)
     if "growth" not in df.columns:
         df["growth"] = "gradual"
     return df

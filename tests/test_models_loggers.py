@@ -103,3 +103,17 @@ def test_evaluation_is_reported_per_logger_kind_beside_the_baselines(logger_flee
     assert report.metrics["tracktrue"]["faults_without_sensor_signals"] == 1
     text = report.describe()
     assert "logger kind polled" in text and "insufficient_data" in text
+
+
+def test_a_logger_kind_without_any_fault_gives_figures_not_a_crash(tmp_path):
+    # no lamp lit yet in the whole truth file, and a kind whose vehicles are all healthy: the
+    # truth restricted to it has no rows (a small held-out fleet once crashed the benchmark here)
+    from models.evaluation import read_truth
+    path = tmp_path / "truth.csv"
+    path.write_text("vehicle_id,fault,component,onset_date,lamp_date,growth\n"
+                    "G,tone_ring_fl,wheel_sensor_fl,2026-03-07,,gradual\n")
+    truth = read_truth(path)
+    res = _result({"H1": range(30, 40)}, ["H1", "H2"])
+    m = _metrics(res, truth[truth["vehicle_id"].isin({"H1", "H2"})], _day(39), lamp_lit=set())
+    assert m["k (unlit sensor faults)"] == 0 and np.isnan(m["recall"])
+    assert m["false_alarms_pct_per_30d"] > 0  # H1's alert run still counts on a healthy vehicle
