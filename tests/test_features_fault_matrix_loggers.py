@@ -185,7 +185,8 @@ def test_a_polled_log_still_carries_the_wheel_ratios_and_dropouts_and_says_why_t
     # The matrix would hold vacuously if a polled log computed nothing. Averaged over a trip's
     # distance, a wheel's ratio beats a 1 km/h step by √n (Widrow & Kollár, Quantization Noise,
     # 2008: the error of a quantiser crossing steps is uniform, q/√12, independent per value),
-    # and a wheel reading zero stands out of any step below 0.6 m/s: both must stay computed.
+    # and a wheel reading zero stays distinguishable at any step up to 0.3 m/s (features.gating's
+    # design choice: half a step within half of DROPOUT_ZERO_MPS): both must stay computed.
     carried = [per_wheel(family, p) for family in ("ratio", "dropouts") for p in POSITIONS]
     for seed in VEHICLE_SEEDS:
         for confounders in HEALTHY_SETS:
