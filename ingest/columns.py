@@ -114,8 +114,10 @@ def _lag_columns(companions: list[tuple[int, str]], columns: dict[str, Column], 
     lags: dict[str, int] = {}
     for index, text in companions:
         signal = by_name.get(text.strip()[: -len(LAG_SUFFIX)].strip().lower())
-        if signal is None or signal in lags:
+        if signal is None:
             ignored.append(f"{text} (a read-lag column of no column read)")
+        elif signal in lags:
+            ignored.append(f"{text} (a second read-lag column for {columns[signal].header})")
         elif grammar.QUANTITY[signal] in grammar.NUMERIC_QUANTITIES:
             lags[signal] = index
     return lags

@@ -111,6 +111,16 @@ def test_bad_read_lag_cells_reject_their_rows_a_switch_lag_is_accepted_a_lag_of_
                                                      "read)'"]
 
 
+def test_a_second_read_lag_column_for_one_signal_is_a_warning_naming_that_signals_column():
+    t = np.arange(0, 5, 0.5)
+    r = read_log(_csv({"FL [km/h]": np.full(t.size, 30.0), "FL @ms": np.full(t.size, 100.0),
+                       "FL [km/h] @ms": np.full(t.size, 200.0)}, t), "d.csv", "V", Profile(), 300)
+    assert r.rejects == []
+    assert [w for w in r.warnings if "@ms" in w] == ["columns not used: 'FL [km/h] @ms (a second read-lag column "
+                                                     "for FL [km/h])'"]
+    assert {row["signal"]: row["read_lag_s"] for row in r.trips[0].signal_rows}["wheel_speed_fl"] == 0.1
+
+
 def test_a_speed_only_telematics_log_is_ingested_with_null_wheel_columns(tmp_path):
     t = np.arange(0, 600, 1.0)
     v = np.clip(t / 10, 0, 25) / KPH_MPS * 1.0
