@@ -12,13 +12,14 @@ Tuning seeds (design choices were made while looking at them, so they are
 excluded from the figures): 101, 202, 303 (24 vehicles, 28 days). Held-out
 evaluation seeds, fixed before any evaluation on them: 404, 505, 606, 707.
 
-Simulator configurations (``--configs``): ``default`` and ``held_out``
-(synthetic_fleet.config.HELD_OUT: other logger rates, resolutions, growth curves and
+Simulator configurations (``--configs``, the names of synthetic_fleet.config.CONFIGS, as
+``tracktrue synth --config`` takes them): ``tuning`` and ``held-out``
+(HELD_OUT: other logger rates, resolutions, growth curves and
 confounder strengths, chosen once and never used while tuning). Each is run on
 the same seeds; figures are pooled per configuration, and per logger kind
 (loggers.csv beside truth.csv) within each. While iterating, run fewer seeds,
 smaller fleets or one configuration, e.g. ``--seeds 101 --vehicles 16 --days 21
---configs default``; report the full default run.
+--configs tuning``; report the full default run.
 
 Service events: the simulator writes service_history.csv; by default the
 benchmark does not publish it, as for a fleet that keeps no service records
@@ -38,6 +39,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from synthetic_fleet.config import CONFIGS
+
 TUNING_SEEDS = (101, 202, 303)
 HELD_OUT_SEEDS = (404, 505, 606, 707)
 TARGETS = {  # issue 5: target, direction
@@ -46,31 +49,18 @@ TARGETS = {  # issue 5: target, direction
 }
 
 
-def simulator_config(name: str):
-    """None for the default configuration, else synthetic_fleet.config.HELD_OUT (None when
-    the simulator has no held-out configuration: that run is skipped with a message)."""
-    if name == "default":
-        return None
-    try:
-        from synthetic_fleet.config import HELD_OUT
-    except ImportError:
-        return None
-    return HELD_OUT
-
-
-def build_chain(work: Path, seed: int, n_vehicles: int, days: int, config_name: str = "default") -> tuple[Path, dict]:
+def build_chain(work: Path, seed: int, n_vehicles: int, days: int, config_name: str = "tuning") -> tuple[Path, dict]:
     from features import run_features
     from ingest import run_ingest
     from synthetic_fleet import generate_fleet
     from tracktrue.store import Store
 
-    suffix = "" if config_name == "default" else f"_{config_name}"
+    suffix = "" if config_name == "tuning" else f"_{config_name}"
     out = work / f"fleet_s{seed}_{n_vehicles}x{days}{suffix}"
     times = {}
     t = time.perf_counter()
     if not (out / "truth.csv").exists():
-        extra = {} if config_name == "default" else {"config": simulator_config(config_name)}
-        generate_fleet(out, n_vehicles=n_vehicles, days=days, seed=seed, **extra)
+        generate_fleet(out, n_vehicles=n_vehicles, days=days, seed=seed, config=config_name)
     times["generate_s"] = time.perf_counter() - t
     store = Store.open(out / "store")
     t = time.perf_counter()
@@ -138,7 +128,7 @@ def main() -> int:
     parser.add_argument("--seeds", type=int, nargs="+", default=list(HELD_OUT_SEEDS))
     parser.add_argument("--vehicles", type=int, default=24)
     parser.add_argument("--days", type=int, default=28)
-    parser.add_argument("--configs", nargs="+", choices=("default", "held_out"), default=["default", "held_out"],
+    parser.add_argument("--configs", nargs="+", choices=tuple(CONFIGS), default=list(CONFIGS),
                         help="simulator configurations to run (default: both)")
     parser.add_argument("--service", action="store_true", help="also evaluate with service_history.csv published")
     args = parser.parse_args()
@@ -146,9 +136,7 @@ def main() -> int:
     if set(args.seeds) & set(TUNING_SEEDS):
         print(f"warning: seed(s) {sorted(set(args.seeds) & set(TUNING_SEEDS))} were used for tuning")
     variants = [False, True] if args.service else [False]
-    configs = [c for c in args.configs if c == "default" or simulator_config(c) is not None]
-    for c in sorted(set(args.configs) - set(configs)):
-        print(f"note: the simulator has no {c} configuration (synthetic_fleet.config.HELD_OUT): skipped")
+    configs = list(dict.fromkeys(args.configs))
     reports: dict[tuple[str, bool], list] = {(c, v): [] for c in configs for v in variants}
     failed = []
     for config in configs:
