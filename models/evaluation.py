@@ -158,7 +158,13 @@ def read_loggers(truth_csv: Path) -> pd.Series | None:
     empty = df["logger_kind"].str.strip() == ""
     if empty.any():
         raise UserError(f"{path}, line {int(np.flatnonzero(empty.to_numpy())[0]) + 2}: logger_kind is empty")
-    return df.drop_duplicates("vehicle_id", keep="last").set_index("vehicle_id")["logger_kind"].str.strip()
+    df["logger_kind"] = df["logger_kind"].str.strip()
+    df = df.drop_duplicates(["vehicle_id", "logger_kind"])
+    clash = df["vehicle_id"].duplicated()
+    if clash.any():
+        line = int(df.index[clash.to_numpy()][0]) + 2
+        raise UserError(f"{path}, line {line}: {df['vehicle_id'][clash].iloc[0]!r} has a second logger_kind")
+    return df.set_index("vehicle_id")["logger_kind"]
 
 
 # --------------------------------------------------------------- methods

@@ -117,3 +117,13 @@ def test_a_logger_kind_without_any_fault_gives_figures_not_a_crash(tmp_path):
     m = _metrics(res, truth[truth["vehicle_id"].isin({"H1", "H2"})], _day(39), lamp_lit=set())
     assert m["k (unlit sensor faults)"] == 0 and np.isnan(m["recall"])
     assert m["false_alarms_pct_per_30d"] > 0  # H1's alert run still counts on a healthy vehicle
+
+
+def test_a_vehicle_with_two_logger_kinds_in_loggers_csv_is_refused_with_its_line(tmp_path):
+    from models.evaluation import read_loggers
+    from tracktrue.errors import UserError
+    (tmp_path / "loggers.csv").write_text("vehicle_id,logger_kind\nA,polled\nA,polled\nB,bus_capture\nA,telematics\n")
+    with pytest.raises(UserError, match=r"loggers.csv, line 5: 'A' has a second logger_kind"):
+        read_loggers(tmp_path / "truth.csv")
+    (tmp_path / "loggers.csv").write_text("vehicle_id,logger_kind\nA, polled\nA,polled\n")
+    assert read_loggers(tmp_path / "truth.csv").to_dict() == {"A": "polled"}
