@@ -73,7 +73,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("synth", help="generate a synthetic fleet's CSV logs with ground truth",
                        description="Simulate a fleet with developing sensor faults and write ordinary CSV exports, "
-                       "vehicles.csv and truth.csv.")
+                       "vehicles.csv, service_history.csv and the ground truth (truth.csv, loggers.csv, "
+                       "lamp_episodes.csv).")
     p.add_argument("--out", required=True, type=Path, metavar="DIR", help="output folder")
     p.add_argument("--vehicles", type=_positive_int, default=24, metavar="N", help="fleet size (default 24)")
     p.add_argument("--days", type=_positive_int, default=60, metavar="D", help="simulated days (default 60)")
