@@ -15,7 +15,7 @@ from functools import lru_cache
 import numpy as np
 import pandas as pd
 from scipy.ndimage import correlate1d, uniform_filter1d
-from scipy.signal import savgol_coeffs
+from scipy.linalg import lstsq
 
 from features.columns import SampleColumns, sample_columns
 from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
@@ -286,7 +286,7 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
 def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
     """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second, of each row of ``x``.
 
-    Savitzky & Golay (1964), the weights from scipy.signal.savgol_coeffs. The window is at least
+    Savitzky & Golay (1964), the weights of scipy.signal.savgol_coeffs (_savgol_derivative_weights). The window is at least
     5 samples, so at low rates it is longer than ``window_s`` (a quadratic
     through fewer points follows the noise). NaN runs are bridged linearly
     before filtering and set back to NaN after; samples near a time gap or
@@ -338,8 +338,24 @@ def _bridge(row: np.ndarray, ok: np.ndarray) -> None:
 
 @lru_cache(maxsize=64)
 def _savgol_derivative_weights(width: int, delta: float) -> np.ndarray:
-    """Savitzky–Golay first-derivative weights (quadratic), ordered for correlation."""
-    return savgol_coeffs(width, 2, deriv=1, delta=delta, use="dot")
+    """Savitzky–Golay first-derivative weights (quadratic), ordered for correlation.
+
+    scipy.signal.savgol_coeffs(width, 2, deriv=1, delta=delta, use="dot")
+    to the last bit, solved here the way it solves them (the least-squares
+    solve of the window's Vandermonde system, scipy.linalg.lstsq with
+    cond = eps·width): importing scipy.signal costs every process, and every
+    pool worker, about 0.6 s, and the closed form i/(Δ·Σi²) differs in the
+    last bits, which moves samples lying exactly on a threshold (a polled
+    logger's quantised speeds do). tests/test_features_physics.py checks the match.
+    """
+    half = width // 2
+    x = np.arange(-half, width - half, dtype=np.float64)
+    vandermonde = x ** np.arange(3, dtype=np.float64).reshape(-1, 1)
+    target = np.zeros(3)
+    target[1] = 1.0 / delta
+    weights = lstsq(vandermonde, target, cond=np.finfo(np.float64).eps * width)[0]
+    weights.setflags(write=False)
+    return weights
 
 
 def median_of_four(values: np.ndarray) -> np.ndarray:

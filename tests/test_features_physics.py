@@ -8,7 +8,7 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
-from scipy.signal import savgol_filter
+from scipy.signal import savgol_coeffs, savgol_filter
 
 import synthetic_fleet
 
@@ -19,7 +19,7 @@ from features.kinematics import (
     single_track_yaw_rate,
     wheel_path_factors,
 )
-from features.signals import deming_fit, smooth_derivative, three_cornered_hat, trip_arrays, window_samples
+from features.signals import _savgol_derivative_weights, deming_fit, smooth_derivative, three_cornered_hat, trip_arrays, window_samples
 from features.spec import VehicleSpec
 from test_features_support import SPEC, make_trip
 from tracktrue.units import DEG_RAD, FOOT_M, G0_MPS2, MPH_MPS
@@ -114,6 +114,15 @@ def test_derivative_matches_scipy_savgol_filter_and_a_local_quadratic_fit():
     i = 200
     coef = np.polyfit(t[i - half:i + half + 1] - t[i], x[i - half:i + half + 1], 2)
     assert ours[i] == pytest.approx(coef[1], rel=1e-9)
+
+
+def test_derivative_weights_are_scipy_savgol_coeffs_to_the_last_bit():
+    # Reference implementation: scipy.signal.savgol_coeffs. Bit-equal, not close: samples lying exactly on a
+    # threshold (quantised polled speeds) would flip on a last-bit difference and change feature values.
+    for width in (5, 7, 15, 31, 101, 151, 301):
+        for rate_hz in (1.0, 2.0, 3.0, 4.7, 10.0, 25.0, 50.0, 100.0):
+            reference = savgol_coeffs(width, 2, deriv=1, delta=1.0 / rate_hz, use="dot")
+            assert np.array_equal(_savgol_derivative_weights(width, 1.0 / rate_hz), reference), (width, rate_hz)
 
 
 def test_derivative_is_not_taken_across_a_time_gap():
