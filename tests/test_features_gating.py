@@ -19,11 +19,13 @@ from scipy.signal import savgol_coeffs
 
 import synthetic_fleet
 from features.extract import FEATURE_COLUMNS, extract_trip_features
-from features.gating import Figures, Gate, feature_gates
+from features.gating import Figures, Gate, _moving_seconds, feature_gates
 from features.row import parse_nan_reasons
+from features.signals import trip_arrays
 from features.spec import VehicleSpec
 from test_features_support import SPEC, make_trip
 from tracktrue.schema import NUMERIC_SIGNALS, POSITIONS, WHEEL_SPEED_COLUMNS
+from tracktrue.signal_quality import moving_seconds
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
 
 #: Vehicle seeds not used while the gates were written.
@@ -164,3 +166,16 @@ def test_the_wheel_yaw_vote_gate_trips_at_design_mds_one_kph_step():
     assert axles.failure(figures, 600.0) == "resolution_too_coarse"
     figures.update({s: Figures(0.01 * KPH_MPS, 10.0, 0.0, 10.0) for s in WHEEL_SPEED_COLUMNS})
     assert axles.failure(figures, 600.0) is None and offset.failure(figures, 600.0) is None
+
+
+def test_moving_seconds_from_the_trips_steps_equal_ingests_to_the_bit():
+    # the gates must measure moving time exactly as ingest's trip_signals does (tracktrue.signal_quality):
+    # random steps with repeats, gaps, near-ties and short or empty traces
+    rng = np.random.default_rng(7)
+    for _ in range(2000):
+        n = int(rng.integers(0, 60))
+        steps = rng.choice([0.0, 0.1, 0.1, 0.1, 0.2, 0.5, 3.0, 0.0999999], size=n)
+        stamps = (pd.Timestamp("2026-01-01").value + np.round(np.cumsum(steps) * 1e9)).astype(np.int64)
+        trip = trip_arrays({"time": stamps})
+        moving = rng.random(n) < rng.random()
+        assert _moving_seconds(trip, moving) == moving_seconds(trip.t, moving)
