@@ -22,6 +22,8 @@ residuals compare a sensor *with the wheels*. So:
 
 from __future__ import annotations
 
+import numpy as np
+
 from tracktrue.schema import POSITIONS
 
 SAFETY_NOTE = (
@@ -87,6 +89,37 @@ TYRE_PROOF: frozenset[str] = frozenset({"steering_vs_wheels"})
 def tyre_moves(residual: str) -> bool:
     """Whether a rolling-radius change can move ``residual`` (a versus-wheels one not in TYRE_PROOF)."""
     return "_vs_wheels" in residual and residual not in TYRE_PROOF
+
+#: The four-ratio pattern of one wheel's rolling-radius change (kinematic derivation, common
+#: practice for indirect tyre monitoring): wheel_ratio_<pos> = v_pos / mean(v) − 1
+#: (features/wheels.py). A wheel whose radius shrinks by a small fraction d turns faster and
+#: reads v·(1 + d); the mean of four then reads v·(1 + d/4), so its own ratio moves by
+#: +d − d/4 = +¾d and each other wheel's by −¼d. Column k is that pattern per unit d for wheel k.
+RADIUS_PATTERNS = np.eye(4) - 0.25
+
+
+def single_wheel_radius_fit(ratio_change_pct) -> tuple[int, float]:
+    """The wheel whose own radius change best explains the four ratio changes, and that change.
+
+    Least squares over the four candidates: for wheel k, d_k = argmin Σ (x − d·t_k)² over the
+    measured wheels (NaN ones left out), t_k = RADIUS_PATTERNS[:, k]; the candidate with the
+    smallest residual wins. Why not the largest |x|: a ratio is against the mean of all four,
+    so every wheel moves when one does, and the fit weighs the whole pattern instead of one
+    wheel (with all four measured and Σx = 0 the two agree; they differ when a wheel is
+    missing or the pattern carries a common shift). Returns (index into POSITIONS, d in %):
+    d > 0 is a smaller rolling radius (a soft or smaller tyre), d < 0 a larger one.
+    """
+    x = np.asarray(ratio_change_pct, dtype=float)
+    measured = np.isfinite(x)
+    if not measured.any():
+        return 0, float("nan")
+    t = RADIUS_PATTERNS[measured]
+    xm = x[measured][:, None]
+    d = (t * xm).sum(axis=0) / (t * t).sum(axis=0)
+    sse = ((xm - t * d) ** 2).sum(axis=0)
+    k = int(np.argmin(sse))
+    return k, float(d[k])
+
 
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}
 

@@ -57,7 +57,7 @@ import numpy as np
 import pandas as pd
 
 from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, residuals_of,
-                                suggestion_for, tyre_moves)
+                                single_wheel_radius_fit, suggestion_for, tyre_moves)
 from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
@@ -586,7 +586,7 @@ class FleetScorer:
         own = now - early
         if not np.isfinite(own).any() or np.nanmax(np.abs(own)) < OWN_TYRE_CHANGE_PCT:
             own = now - recent[[f"center__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
-        return POSITIONS[int(np.nanargmax(np.abs(np.nan_to_num(own, nan=0.0))))]
+        return POSITIONS[single_wheel_radius_fit(own)[0]]
 
     def _evidence(self, zmed: pd.Series) -> dict[str, float]:
         """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""

@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from models.attribution import SAFETY_NOTE, choose_component, suggestion_for
+from models.attribution import SAFETY_NOTE, choose_component, single_wheel_radius_fit, suggestion_for
 from models.feature_set import evidence_key, model_features
 from tracktrue.schema import COMPONENTS, CORE_FEATURES
 
+import numpy as np
 import pandas as pd
 
 
@@ -54,3 +55,39 @@ def test_feature_selection_takes_core_features_and_chassis_extras_but_no_bookkee
     assert feats[len(CORE_FEATURES):] == ["wheel_accel_agreement_fl_pct"]
     assert evidence_key("wheel_accel_agreement_fl_pct") == "wheel_signal_fl"
     assert evidence_key("yaw_offset_dps") == "yaw_vs_wheels"
+
+
+def _ratio_change_pct(radius_shrink_frac: np.ndarray) -> np.ndarray:
+    """wheel_ratio_<pos> change from a known radius change, computed exactly (not linearised).
+
+    Kinematics (common practice): a wheel of rolling radius r(1 − s) rolling at ground speed v
+    turns at v / (r(1 − s)), so its speed sensor (calibrated for r) reads v / (1 − s); the ratio
+    is each reading over the mean of the four readings, minus 1 (features/wheels.py).
+    """
+    reading = 1.0 / (1.0 - radius_shrink_frac)
+    return 100.0 * (reading / reading.mean() - 1.0)
+
+
+def test_a_known_radius_change_on_each_wheel_is_fitted_to_that_wheel_with_its_sign():
+    for k in range(4):
+        for shrink in (0.02, -0.015, 0.004):
+            s = np.zeros(4)
+            s[k] = shrink
+            wheel, d_pct = single_wheel_radius_fit(_ratio_change_pct(s))
+            assert wheel == k
+            assert np.sign(d_pct) == np.sign(shrink)
+            assert abs(d_pct - 100.0 * shrink) < 0.05 * abs(100.0 * shrink) + 0.01
+
+
+def test_the_fit_uses_the_whole_pattern_when_a_wheel_is_missing():
+    x = _ratio_change_pct(np.array([0.0, 0.0, 0.02, 0.0]))
+    x[3] = np.nan  # the rear-right ratio not measured: the three others still say rear-left
+    assert single_wheel_radius_fit(x)[0] == 2
+    x = _ratio_change_pct(np.array([0.0, 0.02, 0.0, 0.0]))
+    x[1] = np.nan  # the changed wheel itself unmeasured: the three −¼d still point at it
+    assert single_wheel_radius_fit(x)[0] == 1
+
+
+def test_jitter_on_one_wheel_names_that_wheel_sensor_not_the_tyre_of_the_largest_ratio():
+    # a tone-ring fault shows as that wheel's own jitter/dropouts; a ratio elsewhere does not override it
+    assert pick(wheel_signal_rl=7.0, wheel_ratio_rl=2.0, wheel_ratio_fr=5.0) == "wheel_sensor_rl"
