@@ -19,7 +19,9 @@ yet; k = their number; the ranking excludes vehicles whose lamp is lit. Lead
 time = lamp date − ``flagged_since`` of the alert run still going on the last
 trip before the lamp (0 when none): the run's first trip, or the change-point
 estimate of a CUSUM that raised it where that lies earlier. Lead fraction =
-lead / (lamp − onset), capped at 1. ``median_alarm_lead_fraction`` counts from
+lead / (lamp − onset), capped at 1. ``median_lead_days_slow`` is the median lead of the
+faults that took ``SLOW_FAULT_DAYS`` (five weeks) or more from onset to lamp, the issue's
+"≥ 21 days for faults that take five weeks or more" (NaN when none did). ``median_alarm_lead_fraction`` counts from
 the run's first alerting trip instead: when the manager was first told. False alarms = alert runs started on vehicles without any truth row, per
 30 healthy vehicle-days, in % of vehicles.
 
@@ -234,6 +236,10 @@ def _raw_forest_result(fleet: ScoredFleet) -> MethodResult:
 
 
 # --------------------------------------------------------------- metrics
+#: Onset-to-lamp span from which issue 5's lead-time target (≥ 21 days) applies: five weeks.
+SLOW_FAULT_DAYS = 35
+
+
 def _run_start_before(trips: pd.DataFrame, vehicle: str, before: pd.Timestamp, use_since: bool = True) -> dt.date | None:
     """Start of the alert run going on at the last trip before ``before``; with ``since``
     in ``trips`` (and ``use_since``), the change-point estimate where it reaches back further."""
@@ -274,7 +280,7 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
     sudden = set(t.loc[not_early, "vehicle_id"])
     found = (flagged_any | lamp_lit | set(t.loc[lit, "vehicle_id"])) & sudden
-    leads, fracs, alarm_fracs = [], [], []
+    leads, slow_leads, fracs, alarm_fracs = [], [], [], []
     for r in t[lit & ~is_tyre & ~not_early].itertuples():
         lamp = pd.Timestamp(r.lamp_date, tz="UTC")
         span = max(1, (r.lamp_date - r.onset_date).days)
@@ -284,6 +290,8 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
             out.append(min(1.0, lead / span))
             if use_since:
                 leads.append(lead)
+                if span >= SLOW_FAULT_DAYS:
+                    slow_leads.append(lead)
     healthy = set(result.trips["vehicle_id"]) - set(truth["vehicle_id"])
     ht = result.trips[result.trips["vehicle_id"].isin(healthy)].sort_values(["vehicle_id", "start_time"])
     a = ht["alert"].fillna(False).astype(bool)
@@ -295,6 +303,7 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
         "precision_at_k": float(precision),
         "recall": float(recall),
         "median_lead_days": float(np.median(leads)) if leads else np.nan,
+        "median_lead_days_slow": float(np.median(slow_leads)) if slow_leads else np.nan,
         "median_lead_fraction": float(np.median(fracs)) if fracs else np.nan,
         "median_alarm_lead_fraction": float(np.median(alarm_fracs)) if alarm_fracs else np.nan,
         "false_alarms_pct_per_30d": 100.0 * starts / (vdays / 30.0) if vdays else np.nan,

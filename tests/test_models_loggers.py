@@ -48,12 +48,23 @@ def test_a_sudden_fault_is_its_own_category_and_no_miss_of_the_early_warning_fig
     m = _metrics(res, truth, _day(39), lamp_lit={"G", "S"})
     assert m["median_lead_fraction"] == pytest.approx(0.5)  # G alone: S is not a miss
     assert m["median_lead_days"] == pytest.approx(10)
+    assert np.isnan(m["median_lead_days_slow"])  # G took 20 days to its lamp, not five weeks
     assert m["k (unlit sensor faults)"] == 1 and m["precision_at_k"] == 1.0 and m["recall"] == 1.0
     assert m["not_detectable_early (sudden/intermittent faults)"] == 2
     assert m["not_early_found"] == pytest.approx(0.5)  # S is lamp-lit, U neither flagged nor lit
     # the same truth read as gradual counts S's missing warning against the figures
     m_gradual = _metrics(res, truth.assign(growth="gradual"), _day(39), lamp_lit={"G", "S"})
     assert m_gradual["median_lead_fraction"] == pytest.approx(0.25)
+
+
+def test_the_lead_time_target_is_measured_on_faults_taking_five_weeks_or_more():
+    # issue 5: median lead ≥ 21 days "for faults that take five weeks or more to reach the lamp".
+    # L (onset 0, lamp 40: 40 days) flagged from day 15 → lead 25; Q (onset 20, lamp 30) from 28 → 2.
+    truth = _truth([("L", "wheel_sensor_fl", 0, 40, "gradual"), ("Q", "wheel_sensor_fl", 20, 30, "gradual")])
+    res = _result({"L": range(15, 41), "Q": range(28, 31)}, ["L", "Q", "H1"], days=45)
+    m = _metrics(res, truth, _day(44), lamp_lit={"L", "Q"})
+    assert m["median_lead_days"] == pytest.approx(13.5)  # both: (25 + 2) / 2
+    assert m["median_lead_days_slow"] == pytest.approx(25)  # L alone
 
 
 def test_vehicles_without_sensor_signals_leave_the_figures_but_are_counted():
