@@ -76,7 +76,7 @@ from features.wheels import AXLE_AGREE_RADPS, JITTER_HIGHPASS_S, JITTER_MAX_QUAN
 from features.windows import DROPOUT_ZERO_MPS, STRAIGHT_YAW_RADPS
 from features.yaw import STEER_TURN_MIN_RADPS, STEER_TURN_MIN_S, YAW_FIT_MIN_S, YAW_GAIN_MIN_TURN_S
 from tracktrue.schema import POSITIONS, WHEEL_SPEED_COLUMNS
-from tracktrue.signal_quality import MOVING_MPS, fresh_rate
+from tracktrue.signal_quality import MOVING_MPS, fresh_rate, moving_seconds
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
 
 #: Columns the gates add to a trip's row.
@@ -147,7 +147,7 @@ class Gate:
 
 def signal_figures(trip: TripArrays, moving: np.ndarray, seconds: float) -> dict[str, Figures]:
     """Figures of every numeric signal the trip logs, over its ``moving`` samples and their
-    ``seconds`` (tracktrue.signal_quality.moving_seconds, as ingest's trip_signals measures them: _moving_seconds)."""
+    ``seconds`` (tracktrue.signal_quality.moving_seconds, as ingest's trip_signals measures them)."""
     duration = float(trip.dt.sum())
     out = {}
     for name in trip.resolution:
@@ -257,7 +257,7 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
     gates = feature_gates(spec, median(speed[moving]) if moving.any() else FALLBACK_SPEED_MPS)
     if not moving.any():  # a trip that never moves: its figures over all its samples
         moving = np.ones(trip.n, bool)
-    moving_s = _moving_seconds(trip, moving)
+    moving_s = moving_seconds(trip.t, moving, capped_steps=trip.dt[:-1])  # TripArrays.dt holds the capped steps
     figures = signal_figures(trip, moving, moving_s)
     for name, checks in gates.items():
         if name not in row.values:
@@ -273,18 +273,6 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
                 row.nan(name, reason)
                 break
     return {"logger_kind": logger_kind(figures)}
-
-
-def _moving_seconds(trip: TripArrays, moving: np.ndarray) -> float:
-    """tracktrue.signal_quality.moving_seconds(trip.t, moving), to the bit, from the trip's own steps.
-
-    TripArrays.dt already holds each step with a gap counted as one median
-    step, the same median of the same steps and the same gap test, so the
-    sum over the steps between moving rows is that function's without its
-    second median of the whole trace.
-    """
-    both = moving[1:] & moving[:-1]
-    return float(np.sum(trip.dt[:-1][both]))
 
 
 def _moving_speed(trip: TripArrays) -> np.ndarray:

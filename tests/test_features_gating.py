@@ -19,7 +19,7 @@ from scipy.signal import savgol_coeffs
 
 import synthetic_fleet
 from features.extract import FEATURE_COLUMNS, extract_trip_features
-from features.gating import Figures, Gate, _moving_seconds, feature_gates
+from features.gating import Figures, Gate, feature_gates
 from features.row import parse_nan_reasons
 from features.signals import trip_arrays
 from features.spec import VehicleSpec
@@ -178,4 +178,4 @@ def test_moving_seconds_from_the_trips_steps_equal_ingests_to_the_bit():
         stamps = (pd.Timestamp("2026-01-01").value + np.round(np.cumsum(steps) * 1e9)).astype(np.int64)
         trip = trip_arrays({"time": stamps})
         moving = rng.random(n) < rng.random()
-        assert _moving_seconds(trip, moving) == moving_seconds(trip.t, moving)
+        assert moving_seconds(trip.t, moving, capped_steps=trip.dt[:-1]) == moving_seconds(trip.t, moving)

@@ -32,8 +32,15 @@ MOVING_MPS = 3.0
 GAP_PERIODS = 2.5
 
 
-def moving_seconds(t_s: np.ndarray, moving: np.ndarray) -> float:
-    """Seconds between consecutive rows that both move, a logging gap counted as one median step."""
+def moving_seconds(t_s: np.ndarray, moving: np.ndarray, capped_steps: np.ndarray | None = None) -> float:
+    """Seconds between consecutive rows that both move, a logging gap counted as one median step.
+
+    ``capped_steps``: those n − 1 steps, gaps already counted as one median step, where the
+    caller holds them (features' TripArrays.dt[:-1]), which saves a second median of the trace.
+    """
+    both = moving[1:] & moving[:-1]
+    if capped_steps is not None:
+        return float(np.sum(capped_steps[both]))
     if t_s.size < 2:
         return 0.0
     steps = np.diff(t_s)
@@ -41,7 +48,6 @@ def moving_seconds(t_s: np.ndarray, moving: np.ndarray) -> float:
     if positive.size == 0:
         return 0.0
     period = float(np.median(positive))
-    both = moving[1:] & moving[:-1]
     steps = steps[both]
     return float(np.sum(np.where(steps > GAP_PERIODS * period, period, steps)))
 
