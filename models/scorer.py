@@ -445,8 +445,10 @@ class FleetScorer:
                     exclusive = np.array([not set(w) & shared for w in named])
                     alone = (seen.sum(axis=1) == 1) & (seen & exclusive[None, :]).any(axis=1)
                     hit |= alone & (top2[:, 1] > sole)
-            if measured is not None and SOLE_WITNESS.get(component) in col:  # a change only (see SOLE_WITNESS)
-                hit |= gated[:, col[SOLE_WITNESS[component]]] > sole
+            if measured is not None:  # a change only (see SOLE_WITNESS)
+                for residual in SOLE_WITNESS.get(component, ()):
+                    if residual in col:
+                        hit |= gated[:, col[residual]] > sole
             out[component] = hit
         return out
 

@@ -125,6 +125,29 @@ def test_a_residual_deciding_alone_must_reach_the_uncorroborated_threshold():
     assert both["accel_lat_sensor"][0]
 
 
+def test_a_change_no_healthy_confounder_moves_decides_alone_at_the_uncorroborated_threshold():
+    # models.attribution.SOLE_WITNESS: the yaw rate at rest (no grade or tyre turns a vehicle at
+    # rest) and each sensor's residual against the wheels (intercepts: a tyre's common radius
+    # scale goes into the slope). Tuning seed 202: an accelerometer offset's residual against the
+    # wheels stood at 2 h four days before its level at rest reached half of h.
+    sc = _scorer()
+    measured = np.ones((1, len(STATS)), dtype=bool)
+    alone = lambda name, s, agree=True: sc._corroborated(  # noqa: E731
+        _strength(**{name: s}), np.array([agree]), measured=measured, sole=1.85)
+    assert alone("accel_lat_vs_wheels", 1.9)["accel_lat_sensor"][0]
+    assert not alone("accel_lat_vs_wheels", 1.8)["accel_lat_sensor"][0]
+    assert alone("yaw", 1.9)["yaw_sensor"][0] and alone("yaw_vs_wheels", 1.9)["yaw_sensor"][0]
+    # a tyre explains a residual against the wheels while a ratio is off
+    assert not alone("yaw_vs_wheels", 1.9, agree=False)["yaw_sensor"][0]
+    # confounded: the accelerometer's level at rest (grade, bank), the yaw gain (new tyres all
+    # round scale the wheel estimate: tuning seed 303) and the shared yaw-versus-steering residual
+    assert not alone("accel_lat", 5.0)["accel_lat_sensor"][0]
+    assert not alone("yaw_gain", 5.0)["yaw_sensor"][0]
+    assert not any(hit[0] for hit in alone("steering_vs_yaw", 5.0).values())
+    # without the per-vehicle record of what was measured (the peer comparison) nothing decides alone
+    assert not sc._corroborated(_strength(yaw=1.9), np.array([True]), sole=1.85)["yaw_sensor"][0]
+
+
 def test_a_change_within_one_healthy_spread_raises_no_alarm_alone():
     # a bus capture's yaw zero moving 0.03 deg/s with the weather (half a peer spread) took
     # the rate at rest and the intercept against the wheels past h together (tuning seed 202)
