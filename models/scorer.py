@@ -61,9 +61,10 @@ from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_compon
 from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
+from models.ordering import SENSOR_COMPONENT_PREFIXES, ranked
 from models.service import FAMILIES, epoch_keys, service_table, statistic_family
 from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
-from tracktrue.schema import POSITIONS, STATUSES
+from tracktrue.schema import POSITIONS
 
 log = logging.getLogger(__name__)
 
@@ -71,8 +72,6 @@ log = logging.getLogger(__name__)
 #: tyre change worth locating (a 20–30 % pressure loss moves the ratio roughly
 #: 0.1–0.5 %: CHECKS.md, from memory).
 OWN_TYRE_CHANGE_PCT = 0.1
-
-SENSOR_COMPONENTS_PREFIX = ("wheel_sensor_", "yaw_sensor", "steering_angle_sensor", "accel_long_sensor", "accel_lat_sensor")
 
 
 class FleetScorer:
@@ -530,7 +529,7 @@ class FleetScorer:
                 status = "lamp_lit"
             elif n_measured[vid] < self.min_trips:
                 status, component, key = "insufficient_data", "none", None
-            elif sensor_alert and component.startswith(SENSOR_COMPONENTS_PREFIX):
+            elif sensor_alert and component.startswith(SENSOR_COMPONENT_PREFIXES):
                 status = "inspect"
             elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
                 status = "watch"
@@ -565,10 +564,7 @@ class FleetScorer:
                 out["platform"] = out["vehicle_id"].map(info["platform"]).fillna(out["platform"])
         else:
             out["depot"] = None
-        order = {s: i for i, s in enumerate(STATUSES)}
-        out["_o"] = out["status"].map(order)
-        out = out.sort_values(["_o", "score"], ascending=[True, False]).drop(columns="_o").reset_index(drop=True)
-        out.insert(0, "rank", np.arange(1, len(out) + 1))
+        out = ranked(out)
         out["as_of"] = as_of
         return out
 

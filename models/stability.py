@@ -50,7 +50,8 @@ import numpy as np
 import pandas as pd
 
 from models.attribution import suggestion_for
-from tracktrue.schema import ALERT_STATUSES, SNOOZE_COLUMNS, STATUS_HISTORY_COLUMNS, STATUSES
+from models.ordering import ranked
+from tracktrue.schema import ALERT_STATUSES, SNOOZE_COLUMNS, STATUS_HISTORY_COLUMNS
 
 #: Alert levels; statuses not listed are not alerts.
 LEVEL = {"watch": 1, "inspect": 2, "lamp_lit": 3}
@@ -130,13 +131,7 @@ def stabilise(raw: pd.DataFrame, trip_scores: pd.DataFrame, as_of: dt.date, hist
         if vid in snooze_of:
             _snooze(r, snooze_of[vid], runs_of.get(vid, prior.iloc[0:0]))
         rows.append(r)
-    out = pd.DataFrame(rows)
-    order = {s: i for i, s in enumerate(STATUSES)}
-    out["_o"] = out["status"].map(order)
-    out = out.sort_values(["_o", "_nff", "score"], ascending=[True, True, False], kind="stable")
-    out = out.drop(columns=["_o", "_nff", "rank"], errors="ignore").reset_index(drop=True)
-    out.insert(0, "rank", np.arange(1, len(out) + 1))
-    return out
+    return ranked(pd.DataFrame(rows), after_status=("_nff",)).drop(columns="_nff")
 
 
 def history_rows(status: pd.DataFrame, run_id: str, created_at: pd.Timestamp, as_of: dt.date) -> pd.DataFrame:
