@@ -56,7 +56,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from models.attribution import (COMPONENT_RESIDUALS, SOLE_WITNESS, choose_component, residuals_of,
+from models.attribution import (COMPONENT_RESIDUALS, POSITION_WORDS, SOLE_WITNESS, choose_component, residuals_of,
                                 single_wheel_radius_fit, suggestion_for, tyre_moves)
 from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
@@ -517,9 +517,10 @@ class FleetScorer:
                 ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
             confirmed = {c for c in COMPONENT_RESIDUALS if bool(strength.get(f"confirmed__{c}", {}).get(vid, False))}
             component, key = choose_component(ev, self.signal_z, self.attribution_z, confirmed)
+            tyre = None
             if component.startswith("tyre_"):
-                pos = self._tyre_position(cur[cur["vehicle_id"] == vid], recent[recent["vehicle_id"] == vid])
-                component, key = f"tyre_{pos}", f"wheel_ratio_{pos}"
+                tyre = self._tyre_position(cur[cur["vehicle_id"] == vid], recent[recent["vehicle_id"] == vid])
+                component, key = f"tyre_{tyre[0]}", f"wheel_ratio_{tyre[0]}"
             alert = bool(last.at[vid, "alert"])
             sensor_alert = bool(last.at[vid, "sensor_alert"])
             lamp_on = bool(lamp_last.at[vid, "lamp_on"]) if vid in lamp_last.index else False
@@ -544,7 +545,7 @@ class FleetScorer:
                 "score_z": float(score_z),
                 "status": status,
                 "suspected_component": component,
-                "evidence": (self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last)
+                "evidence": (self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last, tyre)
                              if status != "insufficient_data" else
                              f"{int(n_measured[vid])} of the last {int(n_recent[vid])} trips carried the signals "
                              "the features need (a logger with vehicle speed and lamps only measures no sensor)"),
@@ -568,8 +569,9 @@ class FleetScorer:
         out["as_of"] = as_of
         return out
 
-    def _tyre_position(self, history: pd.DataFrame, recent: pd.DataFrame) -> str:
-        """The wheel whose speed ratio moved most, in % (one unit for all four wheels).
+    def _tyre_position(self, history: pd.DataFrame, recent: pd.DataFrame) -> tuple[str, float, str]:
+        """The wheel whose speed ratio moved most, in % (one unit for all four wheels), the
+        fitted rolling-radius change d (%, > 0: smaller) and what it is against.
 
         Ratios are relative to the mean of the four wheels, so one tyre's change
         of ε shows as about ¾ε on its wheel and −¼ε on each other: the largest
@@ -581,10 +583,12 @@ class FleetScorer:
         cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
         now = recent[cols].median().to_numpy(dtype=float)
         early = history[cols].head(self.baseline_trips).median().to_numpy(dtype=float)
-        own = now - early
+        own, against = now - early, "in the vehicle's early trips"
         if not np.isfinite(own).any() or np.nanmax(np.abs(own)) < OWN_TYRE_CHANGE_PCT:
             own = now - recent[[f"center__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
-        return POSITIONS[single_wheel_radius_fit(own)[0]]
+            against = "its peers' median (no change in its own trips)"
+        k, d = single_wheel_radius_fit(own)
+        return POSITIONS[k], d, against
 
     def _evidence(self, zmed: pd.Series) -> dict[str, float]:
         """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""
@@ -599,7 +603,7 @@ class FleetScorer:
         return {k: (max(float(v), 0.0) if k.startswith("wheel_signal_") else float(v))
                 for k, v in common.iloc[0].items() if np.isfinite(v)}
 
-    def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last) -> str:
+    def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last, tyre=None) -> str:
         parts = []
         if vid in lamp_last.index and bool(lamp_last.at[vid, "lamp_event"]):
             dtc = str(lamp_last.at[vid, "dtc"] or "").strip()
@@ -624,6 +628,10 @@ class FleetScorer:
                 days = (pd.Timestamp(as_of).date() - flagged).days
                 text += f", flagged for {days} days"
             parts.append(text)
+            if tyre is not None and np.isfinite(tyre[1]):
+                pos, d, against = tyre
+                parts.append(f"the four ratios fit a single tyre: the {POSITION_WORDS[pos]} rolling radius about "
+                             f"{_fmt(abs(d))} % {'smaller' if d > 0 else 'larger'} than {against}")
         return "; ".join(parts)
 
     def attach_raw(self, trip_scores: pd.DataFrame, trip_features: pd.DataFrame) -> pd.DataFrame:

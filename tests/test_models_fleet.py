@@ -53,6 +53,10 @@ def test_tyre_distractor_is_attributed_to_the_tyre_and_not_sent_to_sensor_inspec
     assert row["suspected_component"] == "tyre_rr"
     assert row["status"] == "watch"
     assert "pressures" in row["suggestion"]
+    # the fixture slows the rear-right wheel's ratio by 0.4 %: a larger rolling radius of about that
+    # (models.attribution.single_wheel_radius_fit), the number a technician checks against the tyre
+    assert "fit a single tyre: the rear-right rolling radius about 0.4" in row["evidence"]
+    assert "% larger than in the vehicle's early trips" in row["evidence"]
 
 
 def test_one_odd_trip_does_not_flag_a_healthy_vehicle(scored):
