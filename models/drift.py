@@ -54,6 +54,8 @@ def siegmund_arl_one_sided(k: float, h: float, shift: float) -> float:
     b = h + SIEGMUND_OVERSHOOT
     if abs(delta) < 1e-12:
         return b * b
+    if -2.0 * delta * b > 700.0:  # exp would overflow: a run length beyond any horizon
+        return math.inf
     return (math.exp(-2.0 * delta * b) + 2.0 * delta * b - 1.0) / (2.0 * delta * delta)
 
 

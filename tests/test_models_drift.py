@@ -104,3 +104,9 @@ def test_uncorroborated_threshold_holds_the_budget_for_a_baseline_one_standard_e
     expected = 1.0 - np.exp(-3000 / arl0)
     assert (peak > h).mean() > 0.8 and (peak > h_sole).mean() < 2.0 * expected
     assert siegmund_arl_two_sided(0.75, h_sole, shift=2.5) < 10  # a 2.5σ change is still found within days
+
+
+def test_threshold_for_a_small_reference_value_does_not_overflow():
+    # k = 0.25 needs h ≈ 20 for the fleet's ARL0: the downward side's exp(2|Δ|b) exceeds a float
+    h = threshold_for_arl(0.25, 57_000.0)
+    assert np.isfinite(h) and siegmund_arl_two_sided(0.25, h) == pytest.approx(57_000.0, rel=1e-3)
