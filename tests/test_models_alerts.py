@@ -164,3 +164,20 @@ def test_a_change_within_one_healthy_spread_raises_no_alarm_alone():
     # a witness below h is untouched (it may still corroborate or sustain an alert)
     weak = sc._relevant(np.full((n, 3), 0.7), pd.DataFrame(np.zeros((n, 3)), columns=sc.statistics_), keys)
     np.testing.assert_allclose(weak, 0.7)
+
+
+def test_no_tyre_moves_the_longitudinal_residual_so_a_ratio_drift_does_not_silence_it():
+    # features/accel.py: a radius error moves the distance-weighted mean of a_x − dv/dt by
+    # s·Δ(v²/2)/distance, zero from stop to stop (models.attribution.TYRE_PROOF). Tuning seed 121: an
+    # accelerometer offset lost its sensor alert for six days while a rear wheel's ratio drifted
+    from models.attribution import choose_component, tyre_moves
+    assert not tyre_moves("accel_long_vs_wheels") and tyre_moves("accel_lat_vs_wheels")
+    sc = FleetScorer(confirm_strength=0.5)
+    sc.statistics_ = ["wheel_ratio_rl", "accel_long", "accel_long_vs_wheels"]
+    measured = np.ones((1, 3), dtype=bool)
+    hit = sc._corroborated(np.array([[0.6, 0.1, 2.0]]), np.array([False]), measured=measured, sole=1.85)
+    assert hit["accel_long_sensor"][0]
+    evidence = {"wheel_ratio_rl": 6.0, "accel_long_vs_wheels": 12.0}
+    assert choose_component(evidence, 4.0, 4.0, changed={"accel_long_sensor"})[0] == "accel_long_sensor"
+    # its level against the peers alone may be the accelerometer's mounting: the tyre explains the ratio
+    assert choose_component(evidence, 4.0, 4.0)[0] == "tyre_rl"
