@@ -100,6 +100,7 @@ class FleetScorer:
         budget_vehicle_days: float = 1500.0,
         trips_per_day: float | None = None,
         alert_hold_trips: int = 5,
+        recurring_trips: int = 3,
         confirm_strength: float = 0.5,
         min_change_z: float = 1.0,
         inspect_score_z: float = 8.0,
@@ -131,6 +132,7 @@ class FleetScorer:
         self.budget_vehicle_days = budget_vehicle_days
         self.trips_per_day = trips_per_day
         self.alert_hold_trips = alert_hold_trips
+        self.recurring_trips = recurring_trips
         self.confirm_strength = confirm_strength
         self.min_change_z = min_change_z
         self.inspect_score_z = inspect_score_z
@@ -341,7 +343,8 @@ class FleetScorer:
         confirmed = self._corroborated(strength, ratio_strength < 0.5, measured=measured,
                                        sole=self.sole_cusum_h_ / self.cusum_h_)
         sensor_alarm = alarm[:, wheel_signal].any(axis=1) | np.any(list(confirmed.values()) or [False], axis=0)
-        peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key)
+        recurring = self._recurring_dropouts(trip_scores, vehicle_key)
+        peer_any, peer_sensor = self._peer_alarms(trip_scores, vehicle_key, recurring)
         wide = df[["trip_id", "vehicle_id", "start_time"]].copy()
         wide["drift_alarm"] = alarm.any(axis=1)
         wide["peer_alarm"] = peer_any
@@ -373,6 +376,8 @@ class FleetScorer:
             wide[f"confirmed__{component}"] = hit
         for j, s in enumerate(self.statistics_):
             wide[f"strength__{s}"] = strength[:, j]
+        for c in recurring.columns:
+            wide[f"recurring__{c}"] = recurring[c].to_numpy()
         long = pd.DataFrame({
             "vehicle_id": np.repeat(df["vehicle_id"].to_numpy(), len(self.statistics_)),
             "trip_id": np.repeat(df["trip_id"].to_numpy(), len(self.statistics_)),
@@ -451,7 +456,34 @@ class FleetScorer:
             out[component] = hit
         return out
 
-    def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def _recurring_dropouts(self, trip_scores: pd.DataFrame, key: np.ndarray) -> pd.DataFrame:
+        """Per trip and wheel (columns ``wheel_signal_<pos>``): the median peer z of the wheel's
+        dropout trips among its last ``vehicle_trips`` trips, once there are at least
+        ``recurring_trips`` of them, else 0.
+
+        Why not the rolling median the other keys use: a loose connector or a widening air
+        gap drops the signal on some trips only (an intermittent fault), so the median of ten
+        trips stays 0 while the wheel reads zero with the other three rolling, again and
+        again — a sensor or tone-ring fault, not a stopped vehicle (CHECKS.md, common
+        practice). Two odd trips (a wheel locked on ice, a splash) cannot reach three. On the
+        nine tuning seeds no healthy wheel had a dropout trip at all; an intermittent air gap
+        with dropouts on 4 of its last 10 trips had been named after a healthy lateral offset.
+        """
+        out = {}
+        for pos in POSITIONS:
+            col = f"z_wheel_dropouts_{pos}"
+            if col not in trip_scores.columns:
+                continue
+            z = trip_scores[col].astype(float)
+            hit = z.where(z > 0)
+            grouped = hit.groupby(np.asarray(key))
+            count = grouped.transform(lambda x: x.rolling(self.vehicle_trips, min_periods=1).count())
+            level = grouped.transform(lambda x: x.rolling(self.vehicle_trips, min_periods=1).median())
+            out[f"wheel_signal_{pos}"] = level.where(count >= self.recurring_trips, 0.0).fillna(0.0)
+        return pd.DataFrame(out, index=trip_scores.index)
+
+    def _peer_alarms(self, trip_scores: pd.DataFrame, key: np.ndarray,
+                     recurring: pd.DataFrame | None = None) -> tuple[np.ndarray, np.ndarray]:
         """Fleet-relative alarms: the rolling median (last ``vehicle_trips`` trips) of an
         evidence key's leave-one-out z beyond ``inspect_evidence_z`` peer spreads.
 
@@ -469,6 +501,9 @@ class FleetScorer:
         roll = keys.groupby(key).transform(lambda c: c.rolling(self.vehicle_trips, min_periods=self.min_trips).median())
         strength = pd.DataFrame({c: roll[c].clip(lower=0) if c.startswith("wheel_signal_") else roll[c].abs()
                                  for c in roll.columns}).fillna(0.0)
+        if recurring is not None:  # a wheel's recurring dropouts count as its signal evidence
+            for c in recurring.columns.intersection(strength.columns):
+                strength[c] = np.maximum(strength[c].to_numpy(), recurring[c].to_numpy())
         kinds = np.array([_alarm_kind(c) for c in strength.columns])
         beyond = strength.to_numpy() >= self.inspect_evidence_z
         ratio = strength.to_numpy()[:, kinds == "ratio"].max(axis=1) if (kinds == "ratio").any() else np.zeros(len(z))
@@ -515,6 +550,9 @@ class FleetScorer:
             ev = self._evidence(zmed.loc[vid])
             for st in self.statistics_:
                 ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
+            for c in strength.columns[strength.columns.str.startswith("recurring__")]:
+                k = c.removeprefix("recurring__")
+                ev[k] = max(ev.get(k, 0.0), float(strength.at[vid, c]))
             confirmed = {c for c in COMPONENT_RESIDUALS if bool(strength.get(f"confirmed__{c}", {}).get(vid, False))}
             component, key = choose_component(ev, self.signal_z, self.attribution_z, confirmed)
             tyre = None

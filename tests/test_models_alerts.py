@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from models.scorer import FleetScorer, _latched
 
@@ -181,3 +182,20 @@ def test_no_tyre_moves_the_longitudinal_residual_so_a_ratio_drift_does_not_silen
     assert choose_component(evidence, 4.0, 4.0, changed={"accel_long_sensor"})[0] == "accel_long_sensor"
     # its level against the peers alone may be the accelerometer's mounting: the tyre explains the ratio
     assert choose_component(evidence, 4.0, 4.0)[0] == "tyre_rl"
+
+
+def test_dropouts_on_three_of_the_last_ten_trips_are_wheel_evidence_two_odd_trips_are_not():
+    # an intermittent air gap: the wheel reads zero while the other three roll on some trips only,
+    # so the rolling median of its dropouts stays 0 (CHECKS.md: a sensor or tone-ring fault, common practice)
+    sc = FleetScorer(vehicle_trips=10, recurring_trips=3)
+    z = np.zeros(24)
+    z[[2, 6]] = 40.0  # two odd trips (a wheel locked on ice, a splash)
+    z[[15, 18, 21]] = [10.0, 30.0, 20.0]
+    ts = pd.DataFrame({f"z_wheel_dropouts_{p}": z if p == "fl" else np.zeros(24) for p in ("fl", "fr", "rl", "rr")})
+    rec = sc._recurring_dropouts(ts, np.array(["a"] * 24))
+    assert (rec.loc[:20, "wheel_signal_fl"] == 0).all()  # never three within ten trips before trip 21
+    assert rec.at[21, "wheel_signal_fl"] == 20.0 and rec.at[23, "wheel_signal_fl"] == 20.0  # their median
+    assert (rec[["wheel_signal_fr", "wheel_signal_rl", "wheel_signal_rr"]] == 0).all().all()
+    # the series restart per vehicle (or service epoch): another vehicle's trips do not add up
+    rec2 = sc._recurring_dropouts(ts, np.array(["a"] * 17 + ["b"] * 7))
+    assert (rec2["wheel_signal_fl"] == 0).all()
