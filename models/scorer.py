@@ -550,9 +550,10 @@ class FleetScorer:
             ev = self._evidence(zmed.loc[vid])
             for st in self.statistics_:
                 ev[st] = max(ev.get(st, 0.0), float(strength.at[vid, f"strength__{st}"]) * self.attribution_z)
-            for c in strength.columns[strength.columns.str.startswith("recurring__")]:
-                k = c.removeprefix("recurring__")
-                ev[k] = max(ev.get(k, 0.0), float(strength.at[vid, c]))
+            recurring = {c.removeprefix("recurring__"): float(strength.at[vid, c])
+                         for c in strength.columns[strength.columns.str.startswith("recurring__")]}
+            recurring = {k: v for k, v in recurring.items() if v > ev.get(k, 0.0)}  # where it is the stronger
+            ev.update(recurring)
             confirmed = {c for c in COMPONENT_RESIDUALS if bool(strength.get(f"confirmed__{c}", {}).get(vid, False))}
             component, key = choose_component(ev, self.signal_z, self.attribution_z, confirmed)
             tyre = None
@@ -583,7 +584,8 @@ class FleetScorer:
                 "score_z": float(score_z),
                 "status": status,
                 "suspected_component": component,
-                "evidence": (self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last, tyre)
+                "evidence": (self._evidence_text(vid, key, zmed.loc[vid], recent, flagged, as_of, lamp_last, tyre,
+                                                 by_recurrence=key in recurring)
                              if status != "insufficient_data" else
                              f"{int(n_measured[vid])} of the last {int(n_recent[vid])} trips carried the signals "
                              "the features need (a logger with vehicle speed and lamps only measures no sensor)"),
@@ -641,7 +643,8 @@ class FleetScorer:
         return {k: (max(float(v), 0.0) if k.startswith("wheel_signal_") else float(v))
                 for k, v in common.iloc[0].items() if np.isfinite(v)}
 
-    def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last, tyre=None) -> str:
+    def _evidence_text(self, vid, key, zmed, recent, flagged, as_of, lamp_last, tyre=None,
+                       by_recurrence: bool = False) -> str:
         parts = []
         if vid in lamp_last.index and bool(lamp_last.at[vid, "lamp_event"]):
             dtc = str(lamp_last.at[vid, "dtc"] or "").strip()
@@ -653,6 +656,8 @@ class FleetScorer:
         if key is not None:
             feats = [f for f in self.features_ if evidence_key(f) == key]
             f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
+            if by_recurrence:  # an intermittent signal loss: the trips with dropouts speak (_recurring_dropouts)
+                f = f"wheel_dropouts_{key.rsplit('_', 1)[1]}"
             rows = recent[recent["vehicle_id"] == vid]
             with warnings.catch_warnings():  # a feature its logger cannot measure is all NaN
                 warnings.simplefilter("ignore", RuntimeWarning)
@@ -660,8 +665,14 @@ class FleetScorer:
                 center = float(np.nanmedian(rows[f"center__{f}"])) if f"center__{f}" in rows else np.nan
             words, unit = describe_feature(f)
             group = str(rows["peer_group"].iloc[-1])
-            text = (f"{words} {_fmt(value)}{_unit(unit)} against a peer median of {_fmt(center)}{_unit(unit)} "
-                    f"({group}; {_fmt(zmed.get(f'z_{f}'))} peer spreads, median of {len(rows)} recent trips)")
+            if by_recurrence:
+                hit = rows[f"raw__{f}"].astype(float)
+                hit = hit[hit > 0]
+                text = (f"{words} on {len(hit)} of the last {len(rows)} trips, a median of {_fmt(float(hit.median()))}"
+                        f"{_unit(unit)} on those trips ({group}; peer median {_fmt(center)}{_unit(unit)})")
+            else:
+                text = (f"{words} {_fmt(value)}{_unit(unit)} against a peer median of {_fmt(center)}{_unit(unit)} "
+                        f"({group}; {_fmt(zmed.get(f'z_{f}'))} peer spreads, median of {len(rows)} recent trips)")
             if flagged is not None and as_of is not None:
                 days = (pd.Timestamp(as_of).date() - flagged).days
                 text += f", flagged for {days} days"

@@ -159,3 +159,19 @@ def test_inspection_outcomes_recorded_in_the_dashboard_are_evaluated_as_real_lab
     assert table.loc[top["vehicle_id"], "component_found"] == table.loc[top["vehicle_id"], "suspected_component"]
     assert pd.isna(table.loc[healthy["vehicle_id"], "flagged_since"])
     assert "component agreed: 1 of 1" in report.describe()
+
+
+def test_an_intermittent_signal_loss_on_one_wheel_is_that_wheels_sensor_with_the_trips_counted(tmp_path, features):
+    # a healthy vehicle's front-left wheel reads zero while the others roll on 4 of its last 10 trips
+    # (a loose connector): the median trip says nothing, the recurrence does (CHECKS.md, common practice)
+    tf = features.copy()
+    vid = "V016"
+    last = tf[tf["vehicle_id"] == vid].sort_values("start_time").index[-10:]
+    tf.loc[last, "wheel_dropouts_fl"] = 0.0
+    tf.loc[last[[1, 4, 6, 9]], "wheel_dropouts_fl"] = 12.0
+    store = Store.open(tmp_path / "store")
+    store.publish_table("trip_features", tf)
+    models.run_scoring(store)
+    row = models.ranking_table(store).set_index("vehicle_id").loc[vid]
+    assert row["suspected_component"] == "wheel_sensor_fl" and row["status"] == "inspect"
+    assert "front-left wheel-speed dropouts on 4 of the last 10 trips, a median of 12.00 per 100 km" in row["evidence"]
