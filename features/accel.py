@@ -120,7 +120,7 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
 
     wheels = calibrated_or_raw(trip, ref)
     sources = np.empty((5, kept.size))
-    sources[:4] = np.compress(near, smooth_derivative(wheels, trip), axis=1)  # column picks: faster than [:, near]
+    np.compress(near, smooth_derivative(wheels, trip), axis=1, out=sources[:4])  # column picks: faster than [:, near]
     sources[4] = trip.signals["accel_long"][near]
     np.copyto(sources, np.nan, where=~kept)
     sources -= moving_mean(sources, width)  # high-passed, all five at once

@@ -177,7 +177,8 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
             usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & windows.rolling
                       & (np.abs(yaw * speed) < RATIO_MAX_LAT_MPS2))
         factors = wheel_path_factors(curvature[usable], spec.track_front_m, spec.track_rear_m, spec.wheelbase_m)
-        u = np.compress(usable, trip.wheels, axis=1) / factors
+        u = np.compress(usable, trip.wheels, axis=1)
+        u /= factors
     else:
         usable = windows.cruise
         u = np.compress(usable, trip.wheels, axis=1)
@@ -210,11 +211,16 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
     near = widen(usable, width // 2)  # the usable samples' filter windows, joined (each inside its run)
     kept = usable[near]
+    log_speed = np.compress(near, trip.wheels, axis=1)  # the logs written over the picked speeds: no second stack
     with np.errstate(invalid="ignore", divide="ignore"):
-        log_speed = np.log(np.compress(near, trip.wheels, axis=1), out=np.full((4, kept.size), np.nan), where=kept)
+        np.log(log_speed, out=log_speed, where=kept)
+    np.copyto(log_speed, np.nan, where=~kept)
     # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
-    fast = np.compress(kept, log_speed - moving_mean(log_speed, width), axis=1)
-    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast)) ** 2))  # rows in WHEEL_PAIRS' order
+    high_passed = moving_mean(log_speed, width)
+    np.subtract(log_speed, high_passed, out=high_passed)
+    fast = np.compress(kept, high_passed, axis=1)
+    # rows in WHEEL_PAIRS' order; the differences are ours to reorder
+    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast), overwrite_input=True) ** 2))
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
         step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)
