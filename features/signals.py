@@ -505,14 +505,15 @@ def robust_spread(x: np.ndarray, overwrite_input: bool = False) -> float | np.nd
 
     ``x`` one trace (NaN ignored), or a (k, m) stack whose k rows get one
     spread each from two partitions of the whole stack. ``overwrite_input``
-    (as np.median's): a finite stack may be reordered within its rows
-    instead of copied; medians do not depend on the order, so neither does
-    the result.
+    (as np.median's): a finite stack may be reordered within its rows and
+    overwritten with its deviations instead of copied; medians do not depend
+    on the order, so neither does the result.
     """
     if x.ndim == 2:
         if x.shape[1] == 0 or not np.isfinite(x).all():
             return np.array([robust_spread(row) for row in x])
-        deviation = x - _row_medians(x, overwrite_input)[:, None]
+        medians = _row_medians(x, overwrite_input)[:, None]
+        deviation = np.subtract(x, medians, out=x) if overwrite_input else x - medians
         return 1.4826 * _row_medians(np.abs(deviation, out=deviation), overwrite_input=True)
     x = x[np.isfinite(x)]
     if x.size == 0:

@@ -91,10 +91,14 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
     ``median``: the median of four of ``speeds`` when the caller has it already.
     """
     median = median_of_four(speeds) if median is None else median
+    # |v / median − 1| a wheel at a time through one buffer: a (4, n) one would be fresh memory to fault in
+    sane = np.ones(speeds.shape[1], dtype=bool)
+    deviation = np.empty(speeds.shape[1])
     with np.errstate(invalid="ignore", divide="ignore"):
-        deviation = np.divide(speeds, median)  # |v / median − 1|, in place
-    deviation -= 1.0
-    sane = np.all(np.abs(deviation, out=deviation) < GLITCH_FRAC, axis=0)
+        for speed in speeds:
+            np.divide(speed, median, out=deviation)
+            deviation -= 1.0
+            sane &= np.abs(deviation, out=deviation) < GLITCH_FRAC
     every = sane.all()
     kept = speeds if every else np.compress(sane, speeds, axis=1)  # column picks: faster than [:, sane]
     reference = kept.mean(axis=0) if against == "mean" else median if every else median[sane]
@@ -209,16 +213,7 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         return
     typical_speed = median(windows.speed[usable])
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
-    near = widen(usable, width // 2)  # the usable samples' filter windows, joined (each inside its run)
-    kept = usable[near]
-    log_speed = np.compress(near, trip.wheels, axis=1)  # the logs written over the picked speeds: no second stack
-    with np.errstate(invalid="ignore", divide="ignore"):
-        np.log(log_speed, out=log_speed, where=kept)
-    np.copyto(log_speed, np.nan, where=~kept)
-    # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
-    high_passed = moving_mean(log_speed, width)
-    np.subtract(log_speed, high_passed, out=high_passed)
-    fast = np.compress(kept, high_passed, axis=1)
+    fast = _high_passed_log_speeds(trip, usable, width)
     # rows in WHEEL_PAIRS' order; the differences are ours to reorder
     pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast), overwrite_input=True) ** 2))
     own_var = three_cornered_hat(pair_var, 4)
@@ -228,6 +223,27 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
             row.nan(name, "resolution_too_coarse")
         else:
             row.set(name, 100.0 * np.sqrt(var))
+
+
+def _high_passed_log_speeds(trip: TripArrays, usable: np.ndarray, width: int) -> np.ndarray:
+    """hp(log v) of the four wheels at the ``usable`` samples: log v minus its centred ``width`` moving mean.
+
+    Only the usable samples' filter windows are filtered (usable runs widened
+    by half a window, joined: each window stays inside its run). The logs are
+    written over the picked speeds and the mean's buffer takes the
+    difference, and the (4, n) stacks die with this call, before the pair
+    differences are made: less fresh memory per trip.
+    """
+    near = widen(usable, width // 2)
+    kept = usable[near]
+    log_speed = np.compress(near, trip.wheels, axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        np.log(log_speed, out=log_speed, where=kept)
+    np.copyto(log_speed, np.nan, where=~kept)
+    # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
+    high_passed = moving_mean(log_speed, width)
+    np.subtract(log_speed, high_passed, out=high_passed)
+    return np.compress(kept, high_passed, axis=1)
 
 
 def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float) -> None:
