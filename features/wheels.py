@@ -91,14 +91,10 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
     ``median``: the median of four of ``speeds`` when the caller has it already.
     """
     median = median_of_four(speeds) if median is None else median
-    # |v / median − 1| a wheel at a time through one buffer: a (4, n) one would be fresh memory to fault in
-    sane = np.ones(speeds.shape[1], dtype=bool)
-    deviation = np.empty(speeds.shape[1])
     with np.errstate(invalid="ignore", divide="ignore"):
-        for speed in speeds:
-            np.divide(speed, median, out=deviation)
-            deviation -= 1.0
-            sane &= np.abs(deviation, out=deviation) < GLITCH_FRAC
+        deviation = np.divide(speeds, median)  # |v / median − 1|, in place
+    deviation -= 1.0
+    sane = np.all(np.abs(deviation, out=deviation) < GLITCH_FRAC, axis=0)
     every = sane.all()
     kept = speeds if every else np.compress(sane, speeds, axis=1)  # column picks: faster than [:, sane]
     reference = kept.mean(axis=0) if against == "mean" else median if every else median[sane]
