@@ -292,7 +292,8 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
     return widen(marks, half_width)
 
 
-def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
+def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5,
+                      overwrite_input: bool = False) -> np.ndarray:
     """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second, of each row of ``x``.
 
     Savitzky & Golay (1964), the weights of scipy.signal.savgol_coeffs (_savgol_derivative_weights). The window is at least
@@ -300,7 +301,9 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     through fewer points follows the noise). NaN runs are bridged linearly
     before filtering and set back to NaN after; samples near a time gap or
     within half a window of the trip's ends are NaN. ``x`` is one trace or a
-    (k, n) stack filtered in one call.
+    (k, n) stack filtered in one call. ``overwrite_input`` (a float ``x`` the
+    caller made for this): ``x`` may be bridged, filtered and returned in
+    place, instead of a copy.
     """
     w = window_samples(window_s, trip.rate_hz, minimum=5)
     rows = np.atleast_2d(x)
@@ -309,14 +312,15 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     if not enough.any():
         return np.full(np.shape(x), np.nan)
     complete = valid.all(axis=-1)
-    copied = not (enough.all() and complete.all())
-    filled = rows[enough] if copied else rows
+    in_place = enough.all() and (overwrite_input or complete.all())
+    filled = rows if in_place else rows[enough]  # the copy a caller's rows are bridged in
+    owned = overwrite_input or not in_place
     for row, ok, whole in zip(filled, valid[enough], complete[enough]):
         if not whole:
             _bridge(row, ok)
     weights = _savgol_derivative_weights(w, 1.0 / trip.rate_hz)
-    # a copy of the caller's rows is filtered in place (as in moving_mean): one (k, n) buffer fewer
-    filtered = correlate1d(filled, weights, axis=-1, output=filled if copied else np.empty_like(filled),
+    # rows of our own are filtered in place (as in moving_mean): one (k, n) buffer fewer
+    filtered = correlate1d(filled, weights, axis=-1, output=filled if owned else np.empty_like(filled),
                            mode="nearest")
     if enough.all():
         out = filtered

@@ -68,11 +68,18 @@ class WheelReference:
     radius_offset: np.ndarray  #: (4,) relative radius of each wheel − 1 (fraction)
     speed: np.ndarray  #: rear-axle-centre speed from calibrated rear wheels, m/s
     yaw_rate: np.ndarray  #: (v_rr − v_rl)/track_rear from calibrated wheels, rad/s
-    calibrated_wheels: np.ndarray  #: (4, n) wheel speeds divided by their relative radius
     axles_agree: np.ndarray  #: front- and rear-axle yaw agree (one wheel's glitch breaks it)
     consensus_yaw_rate: np.ndarray  #: 1 s median of yaw sensor, rear axle, front axle, rad/s
     yaw_rate_smoothed: np.ndarray  #: 1 s mean of ``yaw_rate``
     reason: str | None  #: why there is no calibration
+
+    def calibrated(self, wheels: np.ndarray) -> np.ndarray:
+        """The trip's (4, n) ``wheels`` divided by their relative radius.
+
+        Made when a feature asks, not kept for the whole trip: one (4, n)
+        stack less of memory a trip holds (fresh pages each trip).
+        """
+        return wheels / (1.0 + self.radius_offset)[:, None]
 
 
 def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarray | None = None) -> np.ndarray:
@@ -126,19 +133,19 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
     nan = np.full(trip.n, np.nan)
     if seconds(windows.cruise, trip) < CALIBRATION_MIN_S:
         reason = windows.straight_reason or "no_straight_cruise"
-        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, nan,
-                              reason)
+        return WheelReference(np.full(4, np.nan), nan, nan, np.zeros(trip.n, bool), nan, nan, reason)
     cruise = np.compress(windows.cruise, trip.wheels, axis=1)
     offset = distance_ratios(cruise, "median", windows.speed[windows.cruise]) - 1.0
-    calibrated = trip.wheels / (1.0 + offset)[:, None]
-    rl, rr = calibrated[2], calibrated[3]
+    radius = 1.0 + offset
+    rl, rr = trip.wheels[2] / radius[2], trip.wheels[3] / radius[3]  # rows of WheelReference.calibrated
     reason = spec.missing("track_rear_m", "track_front_m")
     if reason:
-        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, nan, reason)
+        return WheelReference(offset, 0.5 * (rl + rr), nan, np.zeros(trip.n, bool), nan, nan, reason)
     width = window_samples(SMOOTH_S, trip.rate_hz)
     rear_yaw = rear_axle_yaw_rate(rl, rr, spec.track_rear_m)
     rear = moving_mean(rear_yaw, width)
-    front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
+    front = moving_mean(front_axle_yaw_rate(trip.wheels[0] / radius[0], trip.wheels[1] / radius[1],
+                                            spec.track_front_m), width)
     with np.errstate(invalid="ignore"):
         agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
     if trip.has("yaw_rate"):
@@ -146,7 +153,7 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         consensus = np.where(np.isfinite(sensor), median_of_three(sensor, rear, front), 0.5 * (rear + front))
     else:
         consensus = 0.5 * (rear + front)
-    return WheelReference(offset, 0.5 * (rl + rr), rear_yaw, calibrated, agree, consensus, rear, None)
+    return WheelReference(offset, 0.5 * (rl + rr), rear_yaw, agree, consensus, rear, None)
 
 
 def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
