@@ -59,10 +59,13 @@ def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> 
             row.set(name, nan_median(trip.signals[signal][windows.standstill]) / G0_MPS2)
 
 
-def calibrated_or_raw(trip: TripArrays, ref: WheelReference) -> np.ndarray:
-    """Wheel speeds divided by their relative radius where calibrated (a spare wheel's speed is
-    ~3 % low, and so would be its acceleration), else as logged."""
-    return ref.calibrated_wheels if np.isfinite(ref.radius_offset).all() else trip.wheels
+def _wheel_derivatives(trip: TripArrays, ref: WheelReference) -> np.ndarray:
+    """Each wheel's smoothed dv/dt, of its speed divided by its relative radius where calibrated (a
+    spare wheel's speed is ~3 % low, and so would be its acceleration), else as logged. The
+    calibrated stack is made here for this, so it is differentiated in place."""
+    if np.isfinite(ref.radius_offset).all():
+        return smooth_derivative(ref.calibrated(trip.wheels), trip, overwrite_input=True)
+    return smooth_derivative(trip.wheels, trip)
 
 
 def accel_long_residual_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
@@ -118,9 +121,8 @@ def wheel_accel_features(row: FeatureRow, trip: TripArrays, windows: Windows, re
     near = widen(usable, width // 2)
     kept = usable[near]
 
-    wheels = calibrated_or_raw(trip, ref)
     sources = np.empty((5, kept.size))
-    sources[:4] = np.compress(near, smooth_derivative(wheels, trip), axis=1)  # column picks: faster than [:, near]
+    np.compress(near, _wheel_derivatives(trip, ref), axis=1, out=sources[:4])  # column picks: faster than [:, near]
     sources[4] = trip.signals["accel_long"][near]
     np.copyto(sources, np.nan, where=~kept)
     sources -= moving_mean(sources, width)  # high-passed, all five at once

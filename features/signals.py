@@ -165,21 +165,28 @@ def moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     """
     valid = np.isfinite(x)
     if valid.all():
-        out = uniform_filter1d(x, width, axis=-1, mode="constant", cval=0.0)
+        out = uniform_filter1d(x, width, axis=-1, output=np.empty_like(x), mode="constant", cval=0.0)
         n, half = x.shape[-1], width // 2
         if n <= 2 * width:
-            return out / _window_share(n, width)
+            out /= _window_share(n, width)
+            return out
         share = _window_share(n, width)  # 1 away from the ends: only they need dividing
         out[..., :half] /= share[:half]
         out[..., n - half:] /= share[n - half:]
         return out
-    total = uniform_filter1d(np.where(valid, x, 0.0), width, axis=-1, mode="constant", cval=0.0)
+    # one buffer throughout: the zero-filled trace is filtered in place (as scipy's own
+    # multi-axis filters do) and divided in place, so a (k, n) stack makes no further
+    # (k, n) temporaries, each of which would be fresh pages to fault in
+    total = np.where(valid, x, 0.0)
+    uniform_filter1d(total, width, axis=-1, output=total, mode="constant", cval=0.0)
     count = _valid_count(valid, width)
     empty = count <= 0.5 / width
     if not empty.any():
-        return total / count  # a plain divide: faster than a masked one
-    out = np.full(np.broadcast_shapes(total.shape, count.shape), np.nan)
-    return np.divide(total, count, out=out, where=~empty)  # an empty window stays NaN
+        total /= count  # a plain divide: faster than a masked one
+        return total
+    np.divide(total, count, out=total, where=~empty)
+    np.copyto(total, np.nan, where=empty)  # an empty window stays NaN
+    return total
 
 
 def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
@@ -187,7 +194,8 @@ def _valid_count(valid: np.ndarray, width: int) -> np.ndarray:
     def share(mask: np.ndarray) -> np.ndarray:
         if mask.ndim == 1:
             return _sparse_gap_share(mask, width)
-        return uniform_filter1d(mask.astype(np.float64), width, axis=-1, mode="constant", cval=0.0)
+        share = mask.astype(np.float64)
+        return uniform_filter1d(share, width, axis=-1, output=share, mode="constant", cval=0.0)
 
     if valid.ndim == 1:
         return share(valid)
@@ -206,7 +214,8 @@ def _sparse_gap_share(valid: np.ndarray, width: int) -> np.ndarray:
     samples are few this touches only their windows instead of filtering the whole trace."""
     missing = np.flatnonzero(~valid)
     if missing.size * width > valid.size // 8:
-        return uniform_filter1d(valid.astype(np.float64), width, mode="constant", cval=0.0)
+        share = valid.astype(np.float64)
+        return uniform_filter1d(share, width, output=share, mode="constant", cval=0.0)
     share = _window_share(valid.size, width).copy()
     half = width // 2
     touched = (missing[:, None] + np.arange(-half, half + 1)).ravel()
@@ -283,7 +292,8 @@ def near_gap(trip: TripArrays, half_width: int) -> np.ndarray:
     return widen(marks, half_width)
 
 
-def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) -> np.ndarray:
+def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5,
+                      overwrite_input: bool = False) -> np.ndarray:
     """Savitzky–Golay first derivative (quadratic fit over ``window_s``), per second, of each row of ``x``.
 
     Savitzky & Golay (1964), the weights of scipy.signal.savgol_coeffs (_savgol_derivative_weights). The window is at least
@@ -291,7 +301,9 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     through fewer points follows the noise). NaN runs are bridged linearly
     before filtering and set back to NaN after; samples near a time gap or
     within half a window of the trip's ends are NaN. ``x`` is one trace or a
-    (k, n) stack filtered in one call.
+    (k, n) stack filtered in one call. ``overwrite_input`` (a float ``x`` the
+    caller made for this): ``x`` may be bridged, filtered and returned in
+    place, instead of a copy.
     """
     w = window_samples(window_s, trip.rate_hz, minimum=5)
     rows = np.atleast_2d(x)
@@ -300,16 +312,21 @@ def smooth_derivative(x: np.ndarray, trip: TripArrays, window_s: float = 1.5) ->
     if not enough.any():
         return np.full(np.shape(x), np.nan)
     complete = valid.all(axis=-1)
-    filled = rows[enough] if not (enough.all() and complete.all()) else rows
+    in_place = enough.all() and (overwrite_input or complete.all())
+    filled = rows if in_place else rows[enough]  # the copy a caller's rows are bridged in
+    owned = overwrite_input or not in_place
     for row, ok, whole in zip(filled, valid[enough], complete[enough]):
         if not whole:
             _bridge(row, ok)
     weights = _savgol_derivative_weights(w, 1.0 / trip.rate_hz)
+    # rows of our own are filtered in place (as in moving_mean): one (k, n) buffer fewer
+    filtered = correlate1d(filled, weights, axis=-1, output=filled if owned else np.empty_like(filled),
+                           mode="nearest")
     if enough.all():
-        out = correlate1d(filled, weights, axis=-1, mode="nearest")
+        out = filtered
     else:
         out = np.full(rows.shape, np.nan)
-        out[enough] = correlate1d(filled, weights, axis=-1, mode="nearest")
+        out[enough] = filtered
     if trip.gap_after.any():
         out[~valid | near_gap(trip, w // 2)] = np.nan
     elif not complete.all():
@@ -473,25 +490,35 @@ def dithered_mean(x: np.ndarray, step: float) -> float:
     return float(np.mean(x[np.abs(x - centre) <= half_width]))
 
 
-def _row_medians(x: np.ndarray) -> np.ndarray:
-    """Median of each row of a finite (k, m) array, m > 0 (see ``median``)."""
+def _row_medians(x: np.ndarray, overwrite_input: bool = False) -> np.ndarray:
+    """Median of each row of a finite (k, m) array, m > 0 (see ``median``); ``overwrite_input``
+    partitions ``x`` itself instead of a copy (np.partition is a copy partitioned in place)."""
     m = x.shape[1]
-    part = np.partition(x, m // 2, axis=1)
+    if overwrite_input:
+        x.partition(m // 2, axis=1)
+        part = x
+    else:
+        part = np.partition(x, m // 2, axis=1)
     upper = part[:, m // 2]
     lower = part[:, : m // 2].max(axis=1) if m % 2 == 0 else upper
     return 0.5 * (lower + upper)
 
 
-def robust_spread(x: np.ndarray) -> float | np.ndarray:
+def robust_spread(x: np.ndarray, overwrite_input: bool = False) -> float | np.ndarray:
     """1.4826 · median absolute deviation: the standard deviation for Gaussian data, robust to outliers.
 
     ``x`` one trace (NaN ignored), or a (k, m) stack whose k rows get one
-    spread each from two partitions of the whole stack.
+    spread each from two partitions of the whole stack. ``overwrite_input``
+    (as np.median's): a finite stack may be reordered within its rows and
+    overwritten with its deviations instead of copied; medians do not depend
+    on the order, so neither does the result.
     """
     if x.ndim == 2:
         if x.shape[1] == 0 or not np.isfinite(x).all():
             return np.array([robust_spread(row) for row in x])
-        return 1.4826 * _row_medians(np.abs(x - _row_medians(x)[:, None]))
+        medians = _row_medians(x, overwrite_input)[:, None]
+        deviation = np.subtract(x, medians, out=x) if overwrite_input else x - medians
+        return 1.4826 * _row_medians(np.abs(deviation, out=deviation), overwrite_input=True)
     x = x[np.isfinite(x)]
     if x.size == 0:
         return np.nan

@@ -68,11 +68,18 @@ class WheelReference:
     radius_offset: np.ndarray  #: (4,) relative radius of each wheel − 1 (fraction)
     speed: np.ndarray  #: rear-axle-centre speed from calibrated rear wheels, m/s
     yaw_rate: np.ndarray  #: (v_rr − v_rl)/track_rear from calibrated wheels, rad/s
-    calibrated_wheels: np.ndarray  #: (4, n) wheel speeds divided by their relative radius
     axles_agree: np.ndarray  #: front- and rear-axle yaw agree (one wheel's glitch breaks it)
     consensus_yaw_rate: np.ndarray  #: 1 s median of yaw sensor, rear axle, front axle, rad/s
     yaw_rate_smoothed: np.ndarray  #: 1 s mean of ``yaw_rate``
     reason: str | None  #: why there is no calibration
+
+    def calibrated(self, wheels: np.ndarray) -> np.ndarray:
+        """The trip's (4, n) ``wheels`` divided by their relative radius.
+
+        Made when a feature asks, not kept for the whole trip: one (4, n)
+        stack less of memory a trip holds (fresh pages each trip).
+        """
+        return wheels / (1.0 + self.radius_offset)[:, None]
 
 
 def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarray | None = None) -> np.ndarray:
@@ -126,19 +133,19 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
     nan = np.full(trip.n, np.nan)
     if seconds(windows.cruise, trip) < CALIBRATION_MIN_S:
         reason = windows.straight_reason or "no_straight_cruise"
-        return WheelReference(np.full(4, np.nan), nan, nan, trip.wheels * np.nan, np.zeros(trip.n, bool), nan, nan,
-                              reason)
+        return WheelReference(np.full(4, np.nan), nan, nan, np.zeros(trip.n, bool), nan, nan, reason)
     cruise = np.compress(windows.cruise, trip.wheels, axis=1)
     offset = distance_ratios(cruise, "median", windows.speed[windows.cruise]) - 1.0
-    calibrated = trip.wheels / (1.0 + offset)[:, None]
-    rl, rr = calibrated[2], calibrated[3]
+    radius = 1.0 + offset
+    rl, rr = trip.wheels[2] / radius[2], trip.wheels[3] / radius[3]  # rows of WheelReference.calibrated
     reason = spec.missing("track_rear_m", "track_front_m")
     if reason:
-        return WheelReference(offset, 0.5 * (rl + rr), nan, calibrated, np.zeros(trip.n, bool), nan, nan, reason)
+        return WheelReference(offset, 0.5 * (rl + rr), nan, np.zeros(trip.n, bool), nan, nan, reason)
     width = window_samples(SMOOTH_S, trip.rate_hz)
     rear_yaw = rear_axle_yaw_rate(rl, rr, spec.track_rear_m)
     rear = moving_mean(rear_yaw, width)
-    front = moving_mean(front_axle_yaw_rate(calibrated[0], calibrated[1], spec.track_front_m), width)
+    front = moving_mean(front_axle_yaw_rate(trip.wheels[0] / radius[0], trip.wheels[1] / radius[1],
+                                            spec.track_front_m), width)
     with np.errstate(invalid="ignore"):
         agree = np.abs(rear - front) < AXLE_AGREE_RADPS + AXLE_AGREE_FRAC * np.abs(rear)
     if trip.has("yaw_rate"):
@@ -146,7 +153,7 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         consensus = np.where(np.isfinite(sensor), median_of_three(sensor, rear, front), 0.5 * (rear + front))
     else:
         consensus = 0.5 * (rear + front)
-    return WheelReference(offset, 0.5 * (rl + rr), rear_yaw, calibrated, agree, consensus, rear, None)
+    return WheelReference(offset, 0.5 * (rl + rr), rear_yaw, agree, consensus, rear, None)
 
 
 def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
@@ -177,7 +184,8 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
             usable = (windows.calm & (windows.speed >= RATIO_MIN_SPEED_MPS) & windows.rolling
                       & (np.abs(yaw * speed) < RATIO_MAX_LAT_MPS2))
         factors = wheel_path_factors(curvature[usable], spec.track_front_m, spec.track_rear_m, spec.wheelbase_m)
-        u = np.compress(usable, trip.wheels, axis=1) / factors
+        u = np.compress(usable, trip.wheels, axis=1)
+        u /= factors
     else:
         usable = windows.cruise
         u = np.compress(usable, trip.wheels, axis=1)
@@ -208,13 +216,9 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
         return
     typical_speed = median(windows.speed[usable])
     width = window_samples(JITTER_HIGHPASS_S, trip.rate_hz, minimum=5)
-    near = widen(usable, width // 2)  # the usable samples' filter windows, joined (each inside its run)
-    kept = usable[near]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        log_speed = np.log(np.compress(near, trip.wheels, axis=1), out=np.full((4, kept.size), np.nan), where=kept)
-    # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
-    fast = np.compress(kept, log_speed - moving_mean(log_speed, width), axis=1)
-    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast)) ** 2))  # rows in WHEEL_PAIRS' order
+    fast = _high_passed_log_speeds(trip, usable, width)
+    # rows in WHEEL_PAIRS' order; the differences are ours to reorder
+    pair_var = dict(zip(WHEEL_PAIRS, robust_spread(pair_differences(fast), overwrite_input=True) ** 2))
     own_var = three_cornered_hat(pair_var, 4)
     for pos, name, var in zip(POSITIONS, names, own_var):
         step = trip.resolution.get(f"wheel_speed_{pos}", np.nan)
@@ -222,6 +226,27 @@ def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -
             row.nan(name, "resolution_too_coarse")
         else:
             row.set(name, 100.0 * np.sqrt(var))
+
+
+def _high_passed_log_speeds(trip: TripArrays, usable: np.ndarray, width: int) -> np.ndarray:
+    """hp(log v) of the four wheels at the ``usable`` samples: log v minus its centred ``width`` moving mean.
+
+    Only the usable samples' filter windows are filtered (usable runs widened
+    by half a window, joined: each window stays inside its run). The logs are
+    written over the picked speeds and the mean's buffer takes the
+    difference, and the (4, n) stacks die with this call, before the pair
+    differences are made: less fresh memory per trip.
+    """
+    near = widen(usable, width // 2)
+    kept = usable[near]
+    log_speed = np.compress(near, trip.wheels, axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        np.log(log_speed, out=log_speed, where=kept)
+    np.copyto(log_speed, np.nan, where=~kept)
+    # hp(log v_i − log v_j) = hp(log v_i) − hp(log v_j) ≈ hp(v_i/v_j − 1): four filters, not six
+    high_passed = moving_mean(log_speed, width)
+    np.subtract(log_speed, high_passed, out=high_passed)
+    return np.compress(kept, high_passed, axis=1)
 
 
 def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float) -> None:

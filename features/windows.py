@@ -122,7 +122,7 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
     logged = np.isfinite(trip.wheels).any(axis=1)
     if logged.sum() < 2:
         return np.zeros(trip.n, dtype=bool), "too_few_wheel_signals"
-    w = trip.wheels[logged]
+    w = trip.wheels if logged.all() else trip.wheels[logged]  # a row pick copies all four traces
     with np.errstate(invalid="ignore"):
         still = np.all(np.isfinite(w) & (w < STANDSTILL_SPEED_MPS), axis=0)
     width = window_samples(SMOOTH_S, trip.rate_hz, minimum=3)
