@@ -5,7 +5,12 @@ morning, and a tyre change must not look like a failing wheel sensor. Each
 event starts a new *epoch* for the drift statistics it can move:
 
 * tyre work (change, rotation, spare fitted/removed) → the wheel-ratio
-  statistics and the residuals that compare a sensor with the wheels;
+  statistics, the residuals that compare a sensor with the wheels, and the
+  two that lean on the wheels' speed scale: the yaw gain against the wheel
+  estimate and yaw against the single-track model (its v is the wheels'), both
+  moved by a full set of new tyres (a new tread is a larger radius: on a
+  tuning seed's 70 days a healthy van's recorded new tyres all round took
+  the two together past their alarm);
 * any other recorded repair or inspection outcome → every statistic;
 * a wheel alignment → nothing: an alignment should remove deviations, and a
   steering offset that appears at one is exactly the fault to catch (an
@@ -25,9 +30,15 @@ NO_RESET_KINDS = frozenset({"wheel_alignment"})
 FAMILIES = ("tyre", "sensor")
 
 
+#: Drift statistics outside the wheel ratios and the versus-wheels residuals that a tyre event moves
+#: through the wheels' common speed scale (module doc).
+WHEEL_SCALE_STATISTICS = frozenset({"yaw_gain", "steering_vs_yaw"})
+
+
 def statistic_family(statistic: str) -> str:
     """``tyre`` for statistics a tyre event moves, else ``sensor``."""
-    return "tyre" if statistic.startswith("wheel_ratio_") or "_vs_wheels" in statistic else "sensor"
+    moved = statistic.startswith("wheel_ratio_") or "_vs_wheels" in statistic or statistic in WHEEL_SCALE_STATISTICS
+    return "tyre" if moved else "sensor"
 
 
 def service_table(events: pd.DataFrame | None) -> pd.DataFrame:

@@ -13,7 +13,7 @@ import dashboard
 from dashboard.service_entries import add_service_entry, read_service_entries
 from ingest import run_ingest
 from ingest.service_events import import_service_events
-from models.service import epoch_keys, service_table
+from models.service import epoch_keys, service_table, statistic_family
 from synthetic_fleet import generate_fleet
 from tracktrue.cli import main
 from tracktrue.errors import UserError
@@ -197,3 +197,13 @@ def test_entering_the_same_event_twice_in_the_dashboard_keeps_one_entry_with_the
     assert read_service_entries(store)["note"].tolist() == ["second"]
     with pytest.raises(ValueError, match="kind must be one of"):
         add_service_entry(store, "VAN-01", dt.date(2026, 5, 2), "polishing")
+
+
+def test_tyre_work_restarts_the_statistics_that_lean_on_the_wheels_speed_scale():
+    # a full set of new tyres is a larger rolling radius on every wheel: the wheel ratios do not
+    # move, but the yaw gain against the wheel estimate and yaw against the single-track model
+    # (its speed is the wheels') do, together (models.service.WHEEL_SCALE_STATISTICS)
+    for moved in ("wheel_ratio_fl", "yaw_vs_wheels", "accel_long_vs_wheels", "yaw_gain", "steering_vs_yaw"):
+        assert statistic_family(moved) == "tyre", moved
+    for unmoved in ("yaw", "accel_long", "accel_lat", "wheel_signal_rr"):
+        assert statistic_family(unmoved) == "sensor", unmoved
