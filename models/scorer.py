@@ -27,7 +27,8 @@ one that leaves the vehicle within a healthy between-vehicle spread is no fault.
 
 A trip *alerts* when a drift statistic is above h, when the rolling median of
 an evidence key's peer z is beyond ``inspect_evidence_z`` (a fault present
-before the baseline was taken), or when the rolling vehicle score exceeds
+before the baseline was taken; for a wheel, also its dropouts once they recur
+on ``recurring_trips`` of its last ``vehicle_trips`` trips), or when the rolling vehicle score exceeds
 median + ``inspect_score_z`` scaled MADs of the fleet's vehicle scores; an
 alert is held for ``alert_hold_trips`` trips. A *sensor* alert leaves out
 ratio-only evidence (a tyre) and versus-wheels residuals while a wheel ratio
