@@ -9,7 +9,10 @@ in one process, and "pool" the same with the local process pool (``workers``).
 Each figure is the fastest of REPEATS runs, as wall time and as CPU time
 (time.process_time, plus finished children for the pool): the machine is
 shared, and CPU time is what contention disturbs least. Growth from the small
-to the large fleet should be linear (samples/s about constant).
+to the large fleet should be linear (samples/s about constant). "floor1" is the
+same read decoding on one thread (pyarrow ``use_threads=False``), as the
+extraction runs: the like-for-like wall-clock comparison on a multi-core
+machine, where the default read spreads its decode over the cores.
 
 The default sizes are 32 and 128 trips of 20 min at 10 Hz (about 0.38 and 1.5
 million samples, about a minute in all): at 16 trips the floor is only about
@@ -74,11 +77,12 @@ def build(root: Path, n_trips: int, duration_s: float) -> tuple[Store, dict, dic
     return store, frames, specs
 
 
-def io_floor(files: list[Path]) -> None:
-    """Read the columns the engine reads (features.batch.read_sample_file) of each part file into numpy."""
+def io_floor(files: list[Path], threads: bool = True) -> None:
+    """Read the columns the engine reads (features.batch.read_sample_file) of each part file into numpy;
+    ``threads`` False decodes on one thread, as the extraction runs (the fair wall-clock comparison)."""
     columns = ["trip_id", *FEATURE_INPUTS]
     for path in files:
-        table = pq.read_table(path, columns=columns)
+        table = pq.read_table(path, columns=columns, use_threads=threads)
         for name in columns:
             table.column(name).to_numpy()
 
@@ -117,9 +121,9 @@ def main() -> None:
     parser.add_argument("--duration", type=float, default=1200.0)
     parser.add_argument("--workers", type=int, default=2, help="local process pool size for the 'pool' figures")
     args = parser.parse_args()
-    print(f"{'trips':>6} {'samples':>9} {'clock':>5} {'floor s':>8} {'extract s':>9} {'run s':>7} {'pool s':>7} "
-          f"{'extract/floor':>13} {'run/floor':>9} {'pool/floor':>10} {'extract samples/s':>17} {'run samples/s':>13} "
-          f"{'extract faults/trip':>19}")
+    print(f"{'trips':>6} {'samples':>9} {'clock':>5} {'floor s':>8} {'floor1 s':>8} {'extract s':>9} {'run s':>7} "
+          f"{'pool s':>7} {'extract/floor':>13} {'extract/floor1':>14} {'run/floor':>9} {'pool/floor':>10} "
+          f"{'extract samples/s':>17} {'run samples/s':>13} {'extract faults/trip':>19}")
     for n in args.trips:
         with tempfile.TemporaryDirectory() as tmp:
             store, frames, specs = build(Path(tmp), n, args.duration)
@@ -127,14 +131,16 @@ def main() -> None:
             trips = trip_columns(store)
             files = [store.root / f for f in sorted(set(store.read_table("trips")["sample_file"]))]
             floor = best_of(REPEATS, lambda: io_floor(files))
+            floor1 = best_of(REPEATS, lambda: io_floor(files, threads=False))
             faults = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
             extract = best_of(REPEATS, lambda: [extract_trip_features(c, specs[v]) for c, v in trips])
             faults = (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - faults) / (REPEATS * n)
             run = best_of(REPEATS, lambda: run_features(store, rebuild=True))
             pool = best_of(REPEATS, lambda: run_features(store, rebuild=True, workers=args.workers))
         for k, clock in enumerate(("wall", "cpu")):
-            print(f"{n:>6} {n_samples:>9} {clock:>5} {floor[k]:>8.3f} {extract[k]:>9.3f} {run[k]:>7.3f} "
-                  f"{pool[k]:>7.3f} {extract[k] / floor[k]:>13.1f} {run[k] / floor[k]:>9.1f} "
+            print(f"{n:>6} {n_samples:>9} {clock:>5} {floor[k]:>8.3f} {floor1[k]:>8.3f} {extract[k]:>9.3f} "
+                  f"{run[k]:>7.3f} {pool[k]:>7.3f} {extract[k] / floor[k]:>13.1f} {extract[k] / floor1[k]:>14.1f} "
+                  f"{run[k] / floor[k]:>9.1f} "
                   f"{pool[k] / floor[k]:>10.1f} {n_samples / extract[k]:>17,.0f} {n_samples / run[k]:>13,.0f} "
                   f"{faults:>19,.0f}")
 
