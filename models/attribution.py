@@ -76,9 +76,9 @@ def residuals_of(component: str) -> set[str]:
 #: set of new tyres) cancels — an intercept against the wheel estimate, or for the longitudinal one
 #: a distance-weighted mean that a scale error leaves unchanged from stop to stop (features/) —
 #: and those a single tyre's radius can move are gated out while a wheel ratio is off
-#: (``tyre_moves``). (The
-#: longitudinal one also carries g·Δh/distance, which a new one-way hilly route could shift; the
-#: level must still move ``min_change_z`` peer spreads, models.scorer ``_relevant``.)
+#: (``tyre_moves``). (The longitudinal one also carries g·Δh/distance, which a new one-way hilly
+#: route could shift; the level must still move ``min_change_z`` peer spreads, models.scorer
+#: ``_relevant``.)
 #: The steering centre against the wheels is also the offset's only witness: the
 #: steering-versus-yaw residual is computed about the measured centre (features/) and never sees
 #: an offset; the inspection checks the alignment first, then recalibrates the sensor.
@@ -114,6 +114,7 @@ TYRE_PROOF: frozenset[str] = frozenset({"steering_vs_wheels", "accel_long_vs_whe
 def tyre_moves(residual: str) -> bool:
     """Whether a rolling-radius change can move ``residual`` (a versus-wheels one not in TYRE_PROOF)."""
     return "_vs_wheels" in residual and residual not in TYRE_PROOF
+
 
 #: The four-ratio pattern of one wheel's rolling-radius change (kinematic derivation, common
 #: practice for indirect tyre monitoring): wheel_ratio_<pos> = v_pos / mean(v) − 1

@@ -13,17 +13,16 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from tracktrue.schema import STATUSES
+from tracktrue.schema import COMPONENTS, STATUSES
 
-#: suspected_component prefixes that name a sensor (DESIGN.md's component vocabulary).
-SENSOR_COMPONENT_PREFIXES: tuple[str, ...] = (
-    "wheel_sensor_", "yaw_sensor", "steering_angle_sensor", "accel_long_sensor", "accel_lat_sensor")
+#: The components of the ranking vocabulary (tracktrue.schema.COMPONENTS) that are sensors.
+SENSOR_COMPONENTS: frozenset[str] = frozenset(c for c in COMPONENTS if not c.startswith("tyre_") and c != "none")
 
 
 def component_class(components: pd.Series) -> np.ndarray:
     """0 for a sensor, 1 for a tyre, 2 for anything else (``none``)."""
     c = components.fillna("none").astype(str)
-    return np.where(c.str.startswith(SENSOR_COMPONENT_PREFIXES), 0, np.where(c.str.startswith("tyre_"), 1, 2))
+    return np.where(c.isin(SENSOR_COMPONENTS), 0, np.where(c.str.startswith("tyre_"), 1, 2))
 
 
 def ranked(status: pd.DataFrame, after_status: tuple[str, ...] = ()) -> pd.DataFrame:

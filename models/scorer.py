@@ -62,7 +62,7 @@ from models.attribution import (COMPONENT_RESIDUALS, POSITION_WORDS, SOLE_WITNES
 from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
-from models.ordering import SENSOR_COMPONENT_PREFIXES, ranked
+from models.ordering import SENSOR_COMPONENTS, ranked
 from models.service import FAMILIES, epoch_keys, service_table, statistic_family
 from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
 from tracktrue.schema import POSITIONS
@@ -476,10 +476,9 @@ class FleetScorer:
             if col not in trip_scores.columns:
                 continue
             z = trip_scores[col].astype(float)
-            hit = z.where(z > 0)
-            grouped = hit.groupby(np.asarray(key))
-            count = grouped.transform(lambda x: x.rolling(self.vehicle_trips, min_periods=1).count())
-            level = grouped.transform(lambda x: x.rolling(self.vehicle_trips, min_periods=1).median())
+            rolling = z.where(z > 0).groupby(np.asarray(key)).rolling(self.vehicle_trips, min_periods=1)
+            count = rolling.count().reset_index(level=0, drop=True).reindex(z.index)
+            level = rolling.median().reset_index(level=0, drop=True).reindex(z.index)
             out[f"wheel_signal_{pos}"] = level.where(count >= self.recurring_trips, 0.0).fillna(0.0)
         return pd.DataFrame(out, index=trip_scores.index)
 
@@ -570,7 +569,7 @@ class FleetScorer:
                 status = "lamp_lit"
             elif n_measured[vid] < self.min_trips:
                 status, component, key = "insufficient_data", "none", None
-            elif sensor_alert and component.startswith(SENSOR_COMPONENT_PREFIXES):
+            elif sensor_alert and component in SENSOR_COMPONENTS:
                 status = "inspect"
             elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
                 status = "watch"
@@ -611,15 +610,16 @@ class FleetScorer:
         return out
 
     def _tyre_position(self, history: pd.DataFrame, recent: pd.DataFrame) -> tuple[str, float, str]:
-        """The wheel whose speed ratio moved most, in % (one unit for all four wheels), the
-        fitted rolling-radius change d (%, > 0: smaller) and what it is against.
+        """The tyre whose own radius change best explains the four ratio changes, in % (one unit
+        for all four wheels; models.attribution.single_wheel_radius_fit), that change d (%, > 0:
+        smaller) and what it is against.
 
         Ratios are relative to the mean of the four wheels, so one tyre's change
-        of ε shows as about ¾ε on its wheel and −¼ε on each other: the largest
-        |change| is the tyre. z-scores would mislead here, because each wheel
-        position has its own peer spread. The change is against the vehicle's
-        own early trips, or against the peer median when its own history shows
-        none (a wrong tyre fitted before the data began).
+        of ε shows as about ¾ε on its wheel and −¼ε on each other. z-scores would
+        mislead here, because each wheel position has its own peer spread. The
+        change is against the vehicle's own early trips, or against the peer
+        median when its own history shows none (a wrong tyre fitted before the
+        data began).
         """
         cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
         now = recent[cols].median().to_numpy(dtype=float)
@@ -655,10 +655,11 @@ class FleetScorer:
                 parts.append(f"trouble code {dtc} stored on {lamp_last.at[vid, 'event_date']}, lamp out since "
                              "(an intermittent fault)")
         if key is not None:
-            feats = [f for f in self.features_ if evidence_key(f) == key]
-            f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
             if by_recurrence:  # an intermittent signal loss: the trips with dropouts speak (_recurring_dropouts)
                 f = f"wheel_dropouts_{key.rsplit('_', 1)[1]}"
+            else:
+                feats = [c for c in self.features_ if evidence_key(c) == key]
+                f = max(feats, key=lambda c: abs(np.nan_to_num(zmed.get(f"z_{c}", np.nan))))
             rows = recent[recent["vehicle_id"] == vid]
             with warnings.catch_warnings():  # a feature its logger cannot measure is all NaN
                 warnings.simplefilter("ignore", RuntimeWarning)
@@ -667,8 +668,8 @@ class FleetScorer:
             words, unit = describe_feature(f)
             group = str(rows["peer_group"].iloc[-1])
             if by_recurrence:
-                hit = rows[f"raw__{f}"].astype(float)
-                hit = hit[hit > 0]
+                rates = rows[f"raw__{f}"].astype(float)
+                hit = rates[rates > 0]
                 text = (f"{words} on {len(hit)} of the last {len(rows)} trips, a median of {_fmt(float(hit.median()))}"
                         f"{_unit(unit)} on those trips ({group}; peer median {_fmt(center)}{_unit(unit)})")
             else:
