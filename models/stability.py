@@ -180,7 +180,8 @@ def _keep_alert(r: dict, last: pd.Series) -> None:
 
 def _verify(r: dict, repair: dict, n_after: int, rules: StabilityRules) -> None:
     what = f"{repair['kind'].replace('_', ' ')}{_of(repair['component'])} on {pd.Timestamp(repair['date']):%Y-%m-%d}"
-    if r["held_status"] in RECURRING:
+    # without a trip since the repair the scorer can only repeat the alert from before it
+    if r["held_status"] in RECURRING and n_after > 0:
         r["status_note"] = _join(f"flagged again after the {what}", r["status_note"])
         return
     if n_after >= rules.verify_trips:

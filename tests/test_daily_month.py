@@ -88,7 +88,10 @@ def test_every_morning_is_ranked_by_status_with_lit_lamps_first(month):
 def test_published_statuses_change_less_often_than_the_scorers_and_never_step_down_after_one_lower_night(month):
     _, mornings, _, _ = month
     shown, raw = statuses(mornings), statuses(mornings, "raw_status")
-    changes_shown = int((shown != shown.shift()).iloc[1:].to_numpy().sum())
+    # "verifying" after a service entry is a published state the scorer does not have: changes into
+    # and out of it are the workshop's, not the stabiliser's
+    service = (shown == "verifying") | (shown.shift() == "verifying")
+    changes_shown = int(((shown != shown.shift()) & ~service).iloc[1:].to_numpy().sum())
     changes_raw = int((raw != raw.shift()).iloc[1:].to_numpy().sum())
     assert changes_shown < changes_raw, (changes_shown, changes_raw)
     held = statuses(mornings, "held_status")

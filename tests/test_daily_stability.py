@@ -155,6 +155,20 @@ def test_the_same_fault_coming_back_after_a_repair_is_flagged_again():
     assert row["status_note"].startswith("flagged again after the tone ring replaced (wheel sensor fl) on 2026-03-03")
 
 
+def test_a_repaired_vehicle_without_a_trip_since_verifies_even_if_the_scorer_still_repeats_the_alert():
+    # the morning after a repair on a day the vehicle stood idle, the scorer has only the trips
+    # from before it: its alert is old news, not the fault coming back
+    n = Nights(["V1"])
+    n.night({"V1": "inspect"})
+    n.event("V1", day=2, kind="sensor_replaced", component="wheel_sensor_fl")
+    n.night({"V1": "inspect"})
+    row = n.night({"V1": "inspect"}, idle=("V1",)).iloc[0]
+    assert row["status"] == "verifying"
+    assert row["status_note"].startswith("verifying after the sensor replaced (wheel sensor fl) on 2026-03-04: 0 of 10")
+    row = n.night({"V1": "inspect"}).iloc[0]  # its next trips still show the fault
+    assert row["status"] == "inspect" and row["status_note"].startswith("flagged again after the sensor replaced")
+
+
 def test_a_repair_entered_late_voids_the_runs_that_did_not_know_of_it():
     n = Nights(["V1"])
     for _ in range(4):
