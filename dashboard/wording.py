@@ -41,6 +41,7 @@ OUTCOME_LABELS: dict[str, str] = {
 FEATURE_UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_pct", "%"),
     ("_dps", "deg/s"),
+    ("_mps", "m/s"),
     ("_deg", "deg"),
     ("_g", "g"),
     ("_km", "km"),

@@ -27,6 +27,7 @@ from features.wheels import (
     trip_distance_km,
     wheel_dropout_features,
     wheel_jitter_features,
+    wheel_onset_features,
     wheel_ratio_features,
 )
 from features.windows import find_windows
@@ -41,7 +42,8 @@ from tracktrue.units import DEG_RAD
 from tracktrue.schema import CORE_FEATURES, NUMERIC_SIGNALS, POSITIONS, QUALITY_COLUMNS
 
 #: Features beyond DESIGN.md's table.
-EXTRA_FEATURES: tuple[str, ...] = tuple(f"wheel_accel_disagree_{p}_g" for p in POSITIONS)
+EXTRA_FEATURES: tuple[str, ...] = (*(f"wheel_accel_disagree_{p}_g" for p in POSITIONS),
+                                   *(f"wheel_onset_{p}_mps" for p in POSITIONS))
 FEATURE_COLUMNS: tuple[str, ...] = (*CORE_FEATURES, *EXTRA_FEATURES)
 RESOLUTION_COLUMNS: tuple[str, ...] = tuple(f"resolution_{s}" for s in NUMERIC_SIGNALS)
 #: Per-trip sums for estimating a platform's steering ratio and understeer (features.platform_params).
@@ -88,6 +90,7 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
     wheel_ratio_features(row, trip, vehicle, windows, ref)
     wheel_jitter_features(row, trip, windows)
     wheel_dropout_features(row, trip, distance_km)
+    wheel_onset_features(row, trip)
     yaw_rest_feature(row, trip, windows)
     yaw_regression_features(row, trip, vehicle, windows, ref)
     steer_center_feature(row, trip, windows)

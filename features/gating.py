@@ -221,6 +221,8 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
                                                                   FILTER_MIN_VALUES / JITTER_HIGHPASS_S))]
         # a wheel reads zero below 0.3 m/s: one step must leave that distinguishable
         gates[f"wheel_dropouts_{pos}"] = [Gate("held", ((own, 1.0),), DROPOUT_ZERO_MPS / 2.0)]
+        # a third of the smallest onset rise worth finding, 0.5 m/s (from memory): a 1 km/h step passes
+        gates[f"wheel_onset_{pos}_mps"] = [Gate("held", ((own, 1.0),), 0.5 / 3)]
         gates[f"wheel_accel_disagree_{pos}_g"] = [
             Gate("derivative", ((own, 1.0 / G0_MPS2),), 0.03 / 3, min_fresh_hz=FILTER_MIN_VALUES / DERIVATIVE_S)]
     # needed but adding no noise (k = 0): the wheels that judge standstill (features.windows), whose step

@@ -1,4 +1,4 @@
-"""Wheel-speed features (ratio, jitter, dropouts) and the calibrated wheel references.
+"""Wheel-speed features (ratio, jitter, dropouts, signal onset) and the calibrated wheel references.
 
 Each wheel is compared with the other wheels only, never with the yaw sensor,
 so a yaw-sensor fault cannot move a wheel feature. The relative rolling radius
@@ -50,6 +50,15 @@ JITTER_MIN_S = 30.0
 #: A wheel "reads zero" below DROPOUT_ZERO_MPS (features.windows) while the other three roll above this.
 ROLLING_MPS = 2.0
 DROPOUT_MIN_KM = 1.0
+#: Signal onsets above this speed are dropouts while driving (wheel_dropouts), not a low-speed onset.
+ONSET_MAX_MPS = 10.0
+#: Two stops: an arrival and a departure each.
+ONSET_MIN_EDGES = 4
+#: A module without a usable signal reports zero; anything above this is a wheel crawling.
+ONSET_ZERO_MPS = 0.05
+#: The lower decile of a trip's edges: a widening gap raises every edge, while a stale or
+#: staggered read (a polled logger reads the wheels one after another) raises one now and then.
+ONSET_QUANTILE = 0.1
 #: The six wheel pairs (indices into POSITIONS).
 WHEEL_PAIRS: tuple[tuple[int, int], ...] = tuple((i, j) for i in range(4) for j in range(i + 1, 4))
 #: A wheel this far from the median of four is a glitch, not a tyre.
@@ -105,7 +114,8 @@ def distance_ratios(speeds: np.ndarray, against: str = "mean", median: np.ndarra
     every = sane.all()
     kept = speeds if every else np.compress(sane, speeds, axis=1)  # column picks: faster than [:, sane]
     reference = kept.mean(axis=0) if against == "mean" else median if every else median[sane]
-    return kept.sum(axis=1) / reference.sum()
+    with np.errstate(invalid="ignore"):  # no sample where all four agree: NaN, the callers say why
+        return kept.sum(axis=1) / reference.sum()
 
 
 def wheel_comparison_window(row: FeatureRow, names, trip: TripArrays, windows: Windows,
@@ -136,6 +146,8 @@ def calibrate(trip: TripArrays, spec: VehicleSpec, windows: Windows) -> WheelRef
         return WheelReference(np.full(4, np.nan), nan, nan, np.zeros(trip.n, bool), nan, nan, reason)
     cruise = np.compress(windows.cruise, trip.wheels, axis=1)
     offset = distance_ratios(cruise, "median", windows.speed[windows.cruise]) - 1.0
+    if not np.isfinite(offset).all():
+        return WheelReference(np.full(4, np.nan), nan, nan, np.zeros(trip.n, bool), nan, nan, "wheels_disagree")
     radius = 1.0 + offset
     rl, rr = trip.wheels[2] / radius[2], trip.wheels[3] / radius[3]  # rows of WheelReference.calibrated
     reason = spec.missing("track_rear_m", "track_front_m")
@@ -194,7 +206,7 @@ def wheel_ratio_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
         return
     ratio = distance_ratios(u) - 1.0
     for name, value in zip(names, ratio):
-        row.set(name, 100.0 * value)
+        row.set(name, 100.0 * value, "wheels_disagree")
 
 
 def wheel_jitter_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
@@ -270,6 +282,44 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
         with np.errstate(invalid="ignore"):  # the other three all roll
             dropped = (trip.wheels[i] < DROPOUT_ZERO_MPS) & (n_rolling - rolling[i] == 3)
         row.set(name, 100.0 * count_events(dropped) / distance_km)
+
+
+def wheel_onset_features(row: FeatureRow, trip: TripArrays) -> None:
+    """wheel_onset_<pos>_mps = lower decile, over the trip's low-speed edges of that wheel's signal
+    (reading zero ↔ reading any speed), of the other three wheels' median speed at the edge's
+    zero sample: how fast the vehicle was still going while this wheel read nothing.
+
+    A passive (inductive) wheel-speed sensor's output amplitude grows with
+    wheel speed and falls as the air gap to the tone ring widens, so the
+    speed below which the module can no longer count teeth rises with the gap
+    (common practice). A healthy wheel's signal appears and vanishes with the
+    other wheels', at the module's cut-off, so the others read zero too and
+    the feature sits near 0 m/s whatever the cut-off, the logger's rate and
+    its step; a widening gap shows here long before the wheel reads zero at the
+    2 m/s wheel_dropouts needs. Edges above ONSET_MAX_MPS are dropouts while
+    driving, counted by wheel_dropouts. Source: wheel speeds only.
+    """
+    names = [f"wheel_onset_{pos}_mps" for pos in POSITIONS]
+    w = trip.wheels
+    with np.errstate(invalid="ignore"):
+        zero = w < ONSET_ZERO_MPS
+    wheel, k = np.nonzero(zero[:, 1:] != zero[:, :-1])  # an edge between samples k and k + 1: a few per stop
+    side = np.where(zero[wheel, k], k, k + 1)  # the edge's zero sample
+    around = w[:, side]
+    complete = np.isfinite(w[:, k]).all(axis=0) & np.isfinite(w[:, k + 1]).all(axis=0) & ~trip.gap_after[k]
+    s = np.sort(around, axis=0)
+    # the median of the other three: the third-smallest of four where the wheel is among the two smallest
+    others = np.where(around[wheel, np.arange(side.size)] <= s[1], s[2], s[1])
+    keep = complete & (others <= ONSET_MAX_MPS)
+    for i, (pos, name) in enumerate(zip(POSITIONS, names)):
+        if not trip.has(f"wheel_speed_{pos}"):
+            row.nan(name, "signal_missing")
+            continue
+        at = others[keep & (wheel == i)]
+        if at.size < ONSET_MIN_EDGES:
+            row.nan(name, "too_few_stops")
+            continue
+        row.set(name, float(np.quantile(at, ONSET_QUANTILE)))
 
 
 def trip_distance_km(trip: TripArrays, speed: np.ndarray) -> float:

@@ -67,7 +67,8 @@ def healthy_spread() -> pd.Series:
 
 def per_wheel(family: str, pos: str) -> str:
     return {"ratio": f"wheel_ratio_{pos}_pct", "jitter": f"wheel_jitter_{pos}_pct",
-            "dropouts": f"wheel_dropouts_{pos}", "accel": f"wheel_accel_disagree_{pos}_g"}[family]
+            "dropouts": f"wheel_dropouts_{pos}", "accel": f"wheel_accel_disagree_{pos}_g",
+            "onset": f"wheel_onset_{pos}_mps"}[family]
 
 
 def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None]:
@@ -79,8 +80,12 @@ def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None
     rear_referenced = ["yaw_offset_dps", "yaw_gain", "lat_residual_g"] if pos in ("rl", "rr") else []
     if kind == "tone_ring":
         return [per_wheel("jitter", pos), per_wheel("accel", pos)], rear_referenced, ("jitter", pos)
-    if kind == "air_gap":  # dropout edges are false accelerations of that wheel too
-        return [per_wheel("dropouts", pos)], [per_wheel("accel", pos)], ("dropouts", pos)
+    if kind == "air_gap":
+        # dropout edges are false accelerations of that wheel too; the other wheels' onsets are taken
+        # against the median of the other three, which the dead wheel lowers a little
+        others = [per_wheel("onset", p) for p in POSITIONS if p != pos]
+        return ([per_wheel("dropouts", pos), per_wheel("onset", pos)], [per_wheel("accel", pos), *others],
+                ("onset", pos))
     if kind in ("tyre_deflation", "tyre_mismatch", "spare"):
         return [per_wheel("ratio", pos)], ratios, ("ratio", pos)
     if case == "tyre_change":
@@ -112,13 +117,18 @@ def bounded(case: str) -> dict[str, tuple[str, float]]:
       yaw-gain fault;
     - a damaged tone ring's erratic tooth steps do not cancel exactly over a
       trip's distance, so its own wheel's ratio moves a little, far less than a
-      deflating tyre moves it.
+      deflating tyre moves it;
+    - a wheel rolling at another speed (a tyre) or with erratic tooth steps (a
+      ring) can cross the module's cut-off a sample earlier or later than the
+      others, which moves a signal onset by one sample's speed change, a few
+      hundredths of a m/s against metres per second for a widening air gap.
     """
     kind, _, pos = case.rpartition("_")
+    onsets = {per_wheel("onset", p): (f"air_gap_{p}", 0.05) for p in POSITIONS}
     if kind in ("tyre_deflation", "tyre_mismatch", "spare"):
-        return {"yaw_gain": ("yaw_gain", 0.1)}
+        return {"yaw_gain": ("yaw_gain", 0.1), **onsets}
     if kind == "tone_ring":
-        return {per_wheel("ratio", pos): (f"tyre_deflation_{pos}", 0.25)}
+        return {per_wheel("ratio", pos): (f"tyre_deflation_{pos}", 0.25), **onsets}
     return {}
 
 

@@ -29,6 +29,33 @@ def test_one_wheel_reading_zero_while_three_roll_is_a_dropout_on_that_wheel_not_
     assert faulty["standstill_s"] == pytest.approx(healthy["standstill_s"], abs=0.5)
 
 
+def two_stops(seed: int, cut_wheel: str | None = None, cut_below_mps: float = 0.0) -> pd.DataFrame:
+    """Two hand-made trips back to back (four low-speed edges per wheel), one wheel optionally
+    reading zero below ``cut_below_mps`` as a module does when a passive sensor's signal is too weak."""
+    first, second = make_trip(seed=seed), make_trip(seed=seed + 1)
+    second["time"] += first["time"].iloc[-1] - first["time"].iloc[0] + pd.Timedelta(seconds=0.1)
+    both = pd.concat([first, second.assign(trip_id=first["trip_id"].iloc[0])], ignore_index=True)
+    if cut_wheel is not None:
+        col = f"wheel_speed_{cut_wheel}"
+        both.loc[both[col] < cut_below_mps, col] = 0.0
+    return both
+
+
+def test_a_wheel_whose_signal_appears_late_has_a_high_onset_the_others_near_zero():
+    # Common practice: a passive wheel-speed sensor's output grows with wheel speed and shrinks as
+    # the air gap widens, so a widening gap raises the speed below which the module reads zero.
+    # The feature is the other wheels' speed on the zero side of each edge, so below the cut-off
+    # by up to one sample's speed change: the builder's ramps change speed by at most 0.49 m/s per
+    # 10 Hz sample between 1.5 and 3.5 m/s.
+    healthy = extract_trip_features(two_stops(seed=4), SPEC)
+    faulty = extract_trip_features(two_stops(seed=4, cut_wheel="rl", cut_below_mps=2.5), SPEC)
+    assert all(healthy[f"wheel_onset_{p}_mps"] < 0.1 for p in POSITIONS)
+    assert 2.5 - 0.49 <= faulty["wheel_onset_rl_mps"] < 2.5
+    assert all(faulty[f"wheel_onset_{p}_mps"] < 0.1 for p in ("fl", "fr", "rr"))
+    one_stop = extract_trip_features(make_trip(seed=4), SPEC)  # a departure and an arrival: too few edges
+    assert math.isnan(one_stop["wheel_onset_rl_mps"]) and reasons(one_stop)["wheel_onset_rl_mps"] == "too_few_stops"
+
+
 def test_every_row_has_every_column_and_a_reason_for_every_nan():
     row = extract_trip_features(make_trip(seed=2), SPEC)
     assert list(row) == list(ROW_COLUMNS)
