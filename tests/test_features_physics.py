@@ -21,6 +21,7 @@ from features.kinematics import (
 )
 from features.signals import _savgol_derivative_weights, deming_fit, smooth_derivative, three_cornered_hat, trip_arrays, window_samples
 from features.spec import VehicleSpec
+from features.wheels import linear_quantile
 from test_features_support import SPEC, make_trip
 from tracktrue.units import DEG_RAD, FOOT_M, G0_MPS2, MPH_MPS
 
@@ -123,6 +124,15 @@ def test_derivative_weights_are_scipy_savgol_coeffs_to_the_last_bit():
         for rate_hz in (1.0, 2.0, 3.0, 4.7, 10.0, 25.0, 50.0, 100.0):
             reference = savgol_coeffs(width, 2, deriv=1, delta=1.0 / rate_hz, use="dot")
             assert np.array_equal(_savgol_derivative_weights(width, 1.0 / rate_hz), reference), (width, rate_hz)
+
+
+def test_linear_quantile_is_numpys_default_quantile():
+    # Reference implementation: numpy.quantile, method "linear" (Hyndman & Fan 1996, definition 7).
+    rng = np.random.default_rng(5)
+    for n in (1, 2, 4, 7, 40):
+        x = rng.exponential(1.0, n)
+        for q in (0.0, 0.1, 0.25, 0.5, 1.0):
+            assert linear_quantile(x, q) == pytest.approx(np.quantile(x, q), rel=1e-12, abs=1e-15), (n, q)
 
 
 def test_derivative_is_not_taken_across_a_time_gap():
