@@ -124,27 +124,29 @@ def tyre_moves(residual: str) -> bool:
 RADIUS_PATTERNS = np.eye(4) - 0.25
 
 
-def single_wheel_radius_fit(ratio_change_pct) -> tuple[int, float]:
+def single_wheel_radius_fit(ratio_change_pct) -> tuple[int, float, float]:
     """The wheel whose own radius change best explains the four ratio changes, and that change.
 
     Least squares over the four candidates: for wheel k, d_k = argmin Σ (x − d·t_k)² over the
     measured wheels (NaN ones left out), t_k = RADIUS_PATTERNS[:, k]; the candidate with the
-    smallest residual wins. Why not the largest |x|: a ratio is against the mean of all four,
+    smallest residual wins, with the share of the change's sum of squares it explains
+    (1: exactly one tyre; an axle's or a set's change fits one tyre poorly). Why not the largest |x|: a ratio is against the mean of all four,
     so every wheel moves when one does, and the fit weighs the whole pattern instead of one
     wheel (with all four measured and Σx = 0 the two agree; they differ when a wheel is
-    missing or the pattern carries a common shift). Returns (index into POSITIONS, d in %):
-    d > 0 is a smaller rolling radius (a soft or smaller tyre), d < 0 a larger one.
+    missing or the pattern carries a common shift). Returns (index into POSITIONS, d in %,
+    share explained): d > 0 is a smaller rolling radius (a soft or smaller tyre), d < 0 a larger one.
     """
     x = np.asarray(ratio_change_pct, dtype=float)
     measured = np.isfinite(x)
     if not measured.any():
-        return 0, float("nan")
+        return 0, float("nan"), float("nan")
     t = RADIUS_PATTERNS[measured]
     xm = x[measured][:, None]
     d = (t * xm).sum(axis=0) / (t * t).sum(axis=0)
     sse = ((xm - t * d) ** 2).sum(axis=0)
     k = int(np.argmin(sse))
-    return k, float(d[k])
+    total = float((xm ** 2).sum())
+    return k, float(d[k]), 1.0 - float(sse[k]) / total if total > 0 else float("nan")
 
 
 POSITION_WORDS = {"fl": "front-left", "fr": "front-right", "rl": "rear-left", "rr": "rear-right"}

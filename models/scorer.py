@@ -73,6 +73,13 @@ log = logging.getLogger(__name__)
 #: tyre change worth locating (a 20–30 % pressure loss moves the ratio roughly
 #: 0.1–0.5 %: CHECKS.md, from memory).
 OWN_TYRE_CHANGE_PCT = 0.1
+#: One tyre's own rolling-radius change (in %) that puts an otherwise quiet vehicle on watch:
+#: the top of the range a markedly low pressure gives (0.1–0.5 %, CHECKS.md, from memory),
+#: so a tyre this far off is soft, damaged or of another size and worth a pressure and size check.
+TYRE_WATCH_RADIUS_PCT = 0.5
+#: ... when a single tyre's pattern explains this share of the four ratios' change: new tyres on
+#: an axle or a set, and the trip-to-trip scatter, fit one tyre poorly.
+TYRE_PATTERN_SHARE = 0.9
 
 
 class FleetScorer:
@@ -573,6 +580,9 @@ class FleetScorer:
                 status = "inspect"
             elif alert or score_z >= self.watch_score_z or max(ev.values(), default=0.0) >= self.watch_evidence_z:
                 status = "watch"
+            elif (quiet_tyre := self._changed_tyre(cur[cur["vehicle_id"] == vid], recent[recent["vehicle_id"] == vid])):
+                status, tyre = "watch", quiet_tyre
+                component, key = f"tyre_{tyre[0]}", f"wheel_ratio_{tyre[0]}"
             else:
                 status, component, key = "ok", "none", None
             flagged = (since_sensor.get(vid) if status == "inspect" else since_any.get(vid)) if alert else None
@@ -628,8 +638,30 @@ class FleetScorer:
         if not np.isfinite(own).any() or np.nanmax(np.abs(own)) < OWN_TYRE_CHANGE_PCT:
             own = now - recent[[f"center__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
             against = "its peers' median (no change in its own trips)"
-        k, d = single_wheel_radius_fit(own)
+        k, d, _ = single_wheel_radius_fit(own)
         return POSITIONS[k], d, against
+
+    def _changed_tyre(self, history: pd.DataFrame, recent: pd.DataFrame) -> tuple[str, float, str] | None:
+        """A single tyre whose rolling radius moved by TYRE_WATCH_RADIUS_PCT or more against the
+        vehicle's early trips since its last tyre work, the pattern of one tyre (TYRE_PATTERN_SHARE):
+        (position, d in %, what it is against) as _tyre_position gives, else None.
+
+        The peer comparison and the drift cannot see every such tyre: tyre sizes and pressures
+        spread between vehicles, and tyre wear and seasonal sets make the ratios wander within one,
+        so a tyre's slow deflation can stay inside both spreads while the four ratios show plainly
+        which wheel changed. A tyre says nothing of a sensor, so this only ever sets a watch.
+        """
+        epoch = epoch_keys(history, self.service_events_, "tyre")
+        own = history[epoch == epoch[-1]] if len(history) else history
+        recent = recent[recent["trip_id"].isin(own["trip_id"])]
+        if len(own) < self.baseline_trips + self.vehicle_trips or len(recent) < self.vehicle_trips:
+            return None
+        cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
+        change = (recent[cols].median() - own[cols].head(self.baseline_trips).median()).to_numpy(dtype=float)
+        k, d, share = single_wheel_radius_fit(change)
+        if not (abs(d) >= TYRE_WATCH_RADIUS_PCT and share >= TYRE_PATTERN_SHARE):
+            return None
+        return POSITIONS[k], d, "in the vehicle's early trips"
 
     def _evidence(self, zmed: pd.Series) -> dict[str, float]:
         """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""

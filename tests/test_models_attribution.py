@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
-from models.attribution import SAFETY_NOTE, choose_component, single_wheel_radius_fit, suggestion_for
-from models.feature_set import evidence_key, model_features
-from tracktrue.schema import COMPONENTS, CORE_FEATURES
-
 import numpy as np
 import pandas as pd
+import pytest
+
+from models.attribution import SAFETY_NOTE, choose_component, single_wheel_radius_fit, suggestion_for
+from models.feature_set import evidence_key, model_features
+from models.scorer import FleetScorer
+from models.service import service_table
+from tracktrue.schema import COMPONENTS, CORE_FEATURES, POSITIONS
 
 
 def pick(**ev):
@@ -73,7 +76,7 @@ def test_a_known_radius_change_on_each_wheel_is_fitted_to_that_wheel_with_its_si
         for shrink in (0.02, -0.015, 0.004):
             s = np.zeros(4)
             s[k] = shrink
-            wheel, d_pct = single_wheel_radius_fit(_ratio_change_pct(s))
+            wheel, d_pct, _ = single_wheel_radius_fit(_ratio_change_pct(s))
             assert wheel == k
             assert np.sign(d_pct) == np.sign(shrink)
             assert abs(d_pct - 100.0 * shrink) < 0.05 * abs(100.0 * shrink) + 0.01
@@ -91,3 +94,42 @@ def test_the_fit_uses_the_whole_pattern_when_a_wheel_is_missing():
 def test_jitter_on_one_wheel_names_that_wheel_sensor_not_the_tyre_of_the_largest_ratio():
     # a tone-ring fault shows as that wheel's own jitter/dropouts; a ratio elsewhere does not override it
     assert pick(wheel_signal_rl=7.0, wheel_ratio_rl=2.0, wheel_ratio_fr=5.0) == "wheel_sensor_rl"
+
+
+def test_one_tyre_is_explained_by_its_pattern_an_axle_is_not():
+    # kinematics as above: one wheel's exact ratio change is the one-tyre pattern to second order
+    one = single_wheel_radius_fit(_ratio_change_pct(np.array([0.0, 0.008, 0.0, 0.0])))
+    assert one[0] == 1 and one[2] > 0.99
+    axle = single_wheel_radius_fit(_ratio_change_pct(np.array([0.008, 0.008, 0.0, 0.0])))
+    assert axle[2] < 0.5  # two new front tyres: no single tyre explains it
+
+
+def _history(radius_shrink_late: np.ndarray, n_early: int = 12, n_late: int = 12) -> pd.DataFrame:
+    """A vehicle's trips with raw ratios: n_early as built, then n_late with a radius change, plus scatter."""
+    rng = np.random.default_rng(3)
+    rows = []
+    start = pd.Timestamp("2026-03-02 08:00", tz="UTC")
+    for i in range(n_early + n_late):
+        s = radius_shrink_late if i >= n_early else np.zeros(4)
+        ratios = _ratio_change_pct(s) + rng.normal(0.0, 0.03, 4)
+        rows.append({"trip_id": f"t{i}", "vehicle_id": "V1", "start_time": start + pd.Timedelta(hours=12 * i),
+                     **{f"raw__wheel_ratio_{p}_pct": r for p, r in zip(POSITIONS, ratios)}})
+    return pd.DataFrame(rows)
+
+
+def _changed_tyre(history: pd.DataFrame, events=None):
+    scorer = FleetScorer()
+    scorer.service_events_ = service_table(events)
+    return scorer._changed_tyre(history, history.tail(scorer.vehicle_trips))
+
+
+def test_a_quiet_vehicle_with_one_tyre_well_off_its_early_radius_is_named_for_that_tyre():
+    pos, d, against = _changed_tyre(_history(np.array([0.0, 0.0, 0.0, 0.008])))
+    assert pos == "rr" and d == pytest.approx(0.8, abs=0.1) and against == "in the vehicle's early trips"
+    assert _changed_tyre(_history(np.array([0.0, 0.0, 0.003, 0.0]))) is None  # within low-pressure range
+    assert _changed_tyre(_history(np.array([0.0, 0.0, 0.008, 0.008]))) is None  # a rear axle of new tyres
+    assert _changed_tyre(_history(np.array([0.0, 0.0, 0.0, 0.008]), n_early=5)) is None  # too little history
+    # tyre work recorded at the change: the trips since are the vehicle's new early trips
+    long = _history(np.array([0.0, 0.0, 0.0, 0.008]), n_late=24)
+    work = pd.DataFrame([{"vehicle_id": "V1", "date": "2026-03-08", "kind": "tyre_change"}])
+    assert _changed_tyre(long)[0] == "rr" and _changed_tyre(long, work) is None
