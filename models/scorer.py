@@ -631,15 +631,19 @@ class FleetScorer:
         median when its own history shows none (a wrong tyre fitted before the
         data began).
         """
-        cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
-        now = recent[cols].median().to_numpy(dtype=float)
-        early = history[cols].head(self.baseline_trips).median().to_numpy(dtype=float)
-        own, against = now - early, "in the vehicle's early trips"
+        own, against = self._own_ratio_change(history, recent), "in the vehicle's early trips"
         if not np.isfinite(own).any() or np.nanmax(np.abs(own)) < OWN_TYRE_CHANGE_PCT:
+            now = recent[[f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
             own = now - recent[[f"center__wheel_ratio_{p}_pct" for p in POSITIONS]].median().to_numpy(dtype=float)
             against = "its peers' median (no change in its own trips)"
         k, d, _ = single_wheel_radius_fit(own)
         return POSITIONS[k], d, against
+
+    def _own_ratio_change(self, history: pd.DataFrame, recent: pd.DataFrame) -> np.ndarray:
+        """The four wheel ratios' change, in %: median of ``recent`` minus that of the first
+        ``baseline_trips`` of ``history``."""
+        cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
+        return (recent[cols].median() - history[cols].head(self.baseline_trips).median()).to_numpy(dtype=float)
 
     def _changed_tyre(self, history: pd.DataFrame, recent: pd.DataFrame) -> tuple[str, float, str] | None:
         """A single tyre whose rolling radius moved by TYRE_WATCH_RADIUS_PCT or more against the
@@ -656,12 +660,11 @@ class FleetScorer:
         recent = recent[recent["trip_id"].isin(own["trip_id"])]
         if len(own) < self.baseline_trips + self.vehicle_trips or len(recent) < self.vehicle_trips:
             return None
-        cols = [f"raw__wheel_ratio_{p}_pct" for p in POSITIONS]
-        change = (recent[cols].median() - own[cols].head(self.baseline_trips).median()).to_numpy(dtype=float)
-        k, d, share = single_wheel_radius_fit(change)
+        k, d, share = single_wheel_radius_fit(self._own_ratio_change(own, recent))
         if not (abs(d) >= TYRE_WATCH_RADIUS_PCT and share >= TYRE_PATTERN_SHARE):
             return None
-        return POSITIONS[k], d, "in the vehicle's early trips"
+        since_work = len(own) < len(history)
+        return POSITIONS[k], d, "just after its last tyre work" if since_work else "in the vehicle's early trips"
 
     def _evidence(self, zmed: pd.Series) -> dict[str, float]:
         """Strength per evidence key: largest |median z| of its features (signal keys: positive only)."""
