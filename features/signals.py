@@ -134,17 +134,23 @@ def _smallest_known_step(known: np.ndarray) -> float:
     signal never changes.
     """
     steps = np.diff(known)
+    if steps.size == 0:
+        return np.nan
     np.abs(steps, out=steps)
     # rounding is monotonic, so the smallest step that survives rounding is the
-    # rounded smallest step above half a unit: no need to round every step (a
-    # select and a plain min: faster than min(where=...) over many zero steps)
-    smallest = float(np.where(steps >= 5e-10, steps, np.inf).min()) if steps.size else np.inf
+    # rounded smallest step above half a unit: no need to round every step. A
+    # trace that never repeats a value needs only the plain minimum; one that
+    # does has its repeats overwritten in place (faster than a select or a min(where=...))
+    smallest = steps.min()
+    if smallest < 5e-10:
+        np.copyto(steps, np.inf, where=steps < 5e-10)
+        smallest = steps.min()
     if not np.isfinite(smallest):
         return np.nan
-    smallest = float(np.round(smallest, 9))
+    smallest = float(smallest.round(9))
     if smallest > 0:
         return smallest
-    steps = np.round(steps, 9)  # the smallest candidate rounded down to 0: the exact, slower way
+    steps = np.round(np.abs(np.diff(known)), 9)  # the smallest candidate rounded down to 0: the exact, slower way
     steps = steps[steps > 0]
     return float(steps.min()) if steps.size else np.nan
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from features.signals import TripArrays, keep_runs, widen
+from features.signals import TripArrays, _smallest_known_step, keep_runs, widen
 
 
 def _trip(step_s: np.ndarray) -> TripArrays:
@@ -43,3 +43,21 @@ def test_widen_is_the_or_of_every_shift_up_to_half():
         for shift in range(2 * half + 1):  # the definition: any True within half samples
             direct |= padded[shift:shift + mask.size]
         np.testing.assert_array_equal(widen(mask, half), direct)
+
+
+def test_the_smallest_known_step_is_the_smallest_nonzero_rounded_step():
+    """The logger's resolution against its definition: the smallest |Δx| that is non-zero after
+    rounding to 1e-9, NaN if none; traces with and without repeats, converted from km/h (float
+    noise in the steps), with steps rounding to zero, and constant."""
+    rng = np.random.default_rng(1)
+    traces = [np.full(50, 3.2), np.array([1.0]), np.array([0.0, 4e-10, 8e-10, 1.3e-9])]
+    for _ in range(300):
+        n = int(rng.integers(2, 400))
+        step = rng.choice([1e-10, 5e-10, 0.01, 0.1, 1.0]) / 3.6  # km/h steps in m/s
+        walk = np.cumsum(rng.choice([-1, 0, 0, 1], n) if rng.random() < 0.5 else rng.normal(0, 1, n))
+        traces.append(np.round(walk) * step if rng.random() < 0.7 else walk * step)
+    for x in traces:
+        steps = np.round(np.abs(np.diff(x)), 9)
+        steps = steps[steps > 0]
+        direct = float(steps.min()) if steps.size else np.nan
+        np.testing.assert_equal(_smallest_known_step(x), direct)
