@@ -150,7 +150,9 @@ def _smallest_known_step(known: np.ndarray) -> float:
     smallest = float(smallest.round(9))
     if smallest > 0:
         return smallest
-    steps = np.round(np.abs(np.diff(known)), 9)  # the smallest candidate rounded down to 0: the exact, slower way
+    # the smallest candidate rounded down to 0: the exact, slower way, from the trace
+    # again (the repeats above were overwritten)
+    steps = np.round(np.abs(np.diff(known)), 9)
     steps = steps[steps > 0]
     return float(steps.min()) if steps.size else np.nan
 
