@@ -59,7 +59,7 @@ import pandas as pd
 
 from models.attribution import (COMPONENT_RESIDUALS, POSITION_WORDS, SOLE_WITNESS, choose_component, residuals_of,
                                 single_wheel_radius_fit, suggestion_for, tyre_moves)
-from models.drift import baseline_error, required_arl0, tabular_cusum, threshold_for_arl
+from models.drift import baseline_error, change_point, required_arl0, tabular_cusum, threshold_for_arl
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
 from models.ordering import SENSOR_COMPONENTS, ranked
@@ -376,6 +376,12 @@ class FleetScorer:
             if idx:
                 s_hi, s_lo = _excursion_start(hi[:, idx], keys[family]), _excursion_start(lo[:, idx], keys[family])
                 start[:, idx] = np.where(hi[:, idx] >= lo[:, idx], s_hi, s_lo)
+        days = pd.to_datetime(df["start_time"], utc=True).astype("int64").to_numpy() / 86_400e9
+        for family in FAMILIES:
+            idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
+            if idx:
+                start[:, idx] = _likely_change_rows(u.iloc[:, idx].to_numpy(), hi[:, idx] >= lo[:, idx],
+                                                    alarm[:, idx], start[:, idx], keys[family], days)
         begun = np.where(alarm, start, len(df))
         times = np.append(pd.to_datetime(df["start_time"], utc=True).to_numpy(), np.datetime64("NaT"))
         wide["change_since"] = times[begun.min(axis=1, initial=len(df))]
@@ -819,6 +825,30 @@ def _excursion_start(c: np.ndarray, key: np.ndarray) -> np.ndarray:
     zero = np.where(c <= 0.0, rows[:, None], -1)
     last_zero = pd.DataFrame(zero).groupby(codes).cummax().to_numpy()
     return np.where(last_zero < 0, first[:, None], last_zero + 1)
+
+
+def _likely_change_rows(u: np.ndarray, upper: np.ndarray, alarm: np.ndarray, page: np.ndarray,
+                        key: np.ndarray, days: np.ndarray) -> np.ndarray:
+    """Page's excursion starts (``page``), replaced on each run of alarming trips by the
+    maximum-likelihood change point of the series up to the run's first trip
+    (models.drift.change_point: a step or a fault growing from nothing), so that
+    flagged_since does not come late for a fault that grew slowly through the reference
+    value. Rows are series-contiguous (sorted by vehicle and time)."""
+    out = page.copy()
+    codes = pd.factorize(np.asarray(key))[0]
+    first_row = np.arange(len(codes)) - pd.Series(codes).groupby(codes).cumcount().to_numpy()
+    same = np.r_[False, codes[1:] == codes[:-1]]
+    for j in range(alarm.shape[1]):
+        a = alarm[:, j]
+        for r in np.flatnonzero(a & ~(np.r_[False, a[:-1]] & same)):
+            lo_row = first_row[r]
+            sign = 1.0 if upper[r, j] else -1.0
+            est = lo_row + change_point(sign * u[lo_row:r + 1, j], days[lo_row:r + 1])
+            end = r + 1
+            while end < len(a) and a[end] and same[end]:
+                end += 1
+            out[r:end, j] = est
+    return out
 
 
 def run_start(times: pd.Series, alert: np.ndarray, since: pd.Series | None = None) -> pd.Timestamp | None:
