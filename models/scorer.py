@@ -46,7 +46,9 @@ standstill accelerometer level whose CUSUM crept to h on a baseline median of
 ten trips). Once raised, a sensor alert stands while some sensor
 residual stays at ``confirm_strength``·h (hysteresis: one episode, one alert).
 ``inspect`` needs a sensor alert on a sensor component; ``flagged_since`` is
-the date of the first trip of the current run of alerts.
+the date of the first trip of the current run of alerts, or earlier where an
+alarming statistic's maximum-likelihood change point (models.drift.change_point)
+lies before it.
 """
 
 from __future__ import annotations
@@ -368,8 +370,9 @@ class FleetScorer:
         sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
         wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
         wide["epoch_key"] = vehicle_key
-        # Page's change-point estimate: an alarming CUSUM's excursion began on the trip after
-        # it was last zero; flagged_since reaches back to it (see _run_start)
+        # where each alarming statistic's change began: Page's estimate (the trip after its
+        # CUSUM was last zero), then the likelihood estimate on each run of alarms
+        # (_likely_change_rows); flagged_since reaches back to it (see _run_start)
         start = np.zeros(hi.shape, dtype=np.int64)
         for family in FAMILIES:
             idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
