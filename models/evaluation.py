@@ -22,7 +22,10 @@ estimate of a CUSUM that raised it where that lies earlier. Lead fraction =
 lead / (lamp − onset), capped at 1. ``median_lead_days_slow`` is the median lead of the
 faults that took ``SLOW_FAULT_DAYS`` (five weeks) or more from onset to lamp, the issue's
 "≥ 21 days for faults that take five weeks or more" (NaN when none did). ``median_alarm_lead_fraction`` counts from
-the run's first alerting trip instead: when the manager was first told. False alarms = alert runs started on vehicles without any truth row, per
+the run's first alerting trip instead: when the manager was first told.
+``median_since_after_onset_days`` (flagged_since − onset of the faults flagged before their
+lamp) and ``since_before_onset_share`` say how well flagged_since estimates the onset: the
+capped lead fraction alone would reward a date reaching back before the fault began. False alarms = alert runs started on vehicles without any truth row, per
 30 healthy vehicle-days, in % of vehicles.
 
 Two kinds of fault are reported apart, for every method alike, because no
@@ -280,7 +283,7 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
     sudden = set(t.loc[not_early, "vehicle_id"])
     found = (flagged_any | lamp_lit | set(t.loc[lit, "vehicle_id"])) & sudden
-    leads, slow_leads, fracs, alarm_fracs = [], [], [], []
+    leads, slow_leads, fracs, alarm_fracs, after_onset = [], [], [], [], []
     for r in t[lit & ~is_tyre & ~not_early].itertuples():
         lamp = pd.Timestamp(r.lamp_date, tz="UTC")
         span = max(1, (r.lamp_date - r.onset_date).days)
@@ -290,6 +293,8 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
             out.append(min(1.0, lead / span))
             if use_since:
                 leads.append(lead)
+                if start:
+                    after_onset.append((start - r.onset_date).days)
                 if span >= SLOW_FAULT_DAYS:
                     slow_leads.append(lead)
     healthy = set(result.trips["vehicle_id"]) - set(truth["vehicle_id"])
@@ -306,6 +311,8 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
         "median_lead_days_slow": float(np.median(slow_leads)) if slow_leads else np.nan,
         "median_lead_fraction": float(np.median(fracs)) if fracs else np.nan,
         "median_alarm_lead_fraction": float(np.median(alarm_fracs)) if alarm_fracs else np.nan,
+        "median_since_after_onset_days": float(np.median(after_onset)) if after_onset else np.nan,
+        "since_before_onset_share": float(np.mean(np.less(after_onset, 0))) if after_onset else np.nan,
         "false_alarms_pct_per_30d": 100.0 * starts / (vdays / 30.0) if vdays else np.nan,
         "healthy_vehicle_days_per_false_alarm": vdays / starts if starts else np.inf,
         "attribution_accuracy": float(attribution),

@@ -48,6 +48,8 @@ def test_a_sudden_fault_is_its_own_category_and_no_miss_of_the_early_warning_fig
     m = _metrics(res, truth, _day(39), lamp_lit={"G", "S"})
     assert m["median_lead_fraction"] == pytest.approx(0.5)  # G alone: S is not a miss
     assert m["median_lead_days"] == pytest.approx(10)
+    assert m["median_since_after_onset_days"] == pytest.approx(10)  # flagged day 15, onset day 5
+    assert m["since_before_onset_share"] == 0.0
     assert np.isnan(m["median_lead_days_slow"])  # G took 20 days to its lamp, not five weeks
     assert m["k (unlit sensor faults)"] == 1 and m["precision_at_k"] == 1.0 and m["recall"] == 1.0
     assert m["not_detectable_early (sudden/intermittent faults)"] == 2
@@ -65,6 +67,7 @@ def test_the_lead_time_target_is_measured_on_faults_taking_five_weeks_or_more():
     m = _metrics(res, truth, _day(44), lamp_lit={"L", "Q"})
     assert m["median_lead_days"] == pytest.approx(13.5)  # both: (25 + 2) / 2
     assert m["median_lead_days_slow"] == pytest.approx(25)  # L alone
+    assert m["median_since_after_onset_days"] == pytest.approx(11.5)  # L 15, Q 8
 
 
 def test_vehicles_without_sensor_signals_leave_the_figures_but_are_counted():
@@ -138,3 +141,11 @@ def test_a_vehicle_with_two_logger_kinds_in_loggers_csv_is_refused_with_its_line
         read_loggers(tmp_path / "truth.csv")
     (tmp_path / "loggers.csv").write_text("vehicle_id,logger_kind\nA, polled\nA,polled\n")
     assert read_loggers(tmp_path / "truth.csv").to_dict() == {"A": "polled"}
+
+
+def test_a_flagged_since_before_the_onset_is_capped_in_the_lead_fraction_but_counted():
+    truth = _truth([("G", "wheel_sensor_fl", 5, 25, "gradual")])
+    res = _result({"G": range(3, 26)}, ["G", "H1"])
+    m = _metrics(res, truth, _day(39), lamp_lit={"G"})
+    assert m["median_lead_fraction"] == 1.0  # 22 days of a 20-day span, capped
+    assert m["median_since_after_onset_days"] == -2 and m["since_before_onset_share"] == 1.0
