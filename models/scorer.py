@@ -721,7 +721,7 @@ class FleetScorer:
                         f"({group}; {_fmt(zmed.get(f'z_{f}'))} peer spreads, median of {len(rows)} recent trips)")
             if flagged is not None and as_of is not None:
                 days = (pd.Timestamp(as_of).date() - flagged).days
-                text += f", flagged for {days} day{'' if days == 1 else 's'}"
+                text += f", changing for about {days} day{'' if days == 1 else 's'}"
             parts.append(text)
             if tyre is not None and np.isfinite(tyre[1]):
                 pos, d, against = tyre
