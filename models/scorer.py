@@ -370,22 +370,15 @@ class FleetScorer:
         sustained = raised | (gated[:, sensor_stats].max(axis=1, initial=0.0) >= self.confirm_strength)
         wide["sensor_alert"] = self._held(_latched(raised, sustained, vehicle_key), vehicle_key)
         wide["epoch_key"] = vehicle_key
-        # where each alarming statistic's change began: Page's estimate (the trip after its
-        # CUSUM was last zero), then the likelihood estimate on each run of alarms
-        # (_likely_change_rows); flagged_since reaches back to it (see _run_start)
-        start = np.zeros(hi.shape, dtype=np.int64)
-        for family in FAMILIES:
-            idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
-            if idx:
-                s_hi, s_lo = _excursion_start(hi[:, idx], keys[family]), _excursion_start(lo[:, idx], keys[family])
-                start[:, idx] = np.where(hi[:, idx] >= lo[:, idx], s_hi, s_lo)
+        # where each alarming statistic's change began (_change_rows); flagged_since reaches
+        # back to it (see _run_start)
         days = pd.to_datetime(df["start_time"], utc=True).astype("int64").to_numpy() / 86_400e9
+        begun = np.full(hi.shape, len(df), dtype=np.int64)
         for family in FAMILIES:
             idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
             if idx:
-                start[:, idx] = _likely_change_rows(u.iloc[:, idx].to_numpy(), hi[:, idx] >= lo[:, idx],
-                                                    alarm[:, idx], start[:, idx], keys[family], days)
-        begun = np.where(alarm, start, len(df))
+                begun[:, idx] = _change_rows(u.iloc[:, idx].to_numpy(), hi[:, idx] >= lo[:, idx], alarm[:, idx],
+                                             keys[family], days)
         times = np.append(pd.to_datetime(df["start_time"], utc=True).to_numpy(), np.datetime64("NaT"))
         wide["change_since"] = times[begun.min(axis=1, initial=len(df))]
         wide["sensor_change_since"] = times[np.where(sensor_stats[None, :], begun, len(df)).min(axis=1, initial=len(df))]
@@ -817,27 +810,14 @@ def _lamp_state(lamps: pd.DataFrame, ts: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def _excursion_start(c: np.ndarray, key: np.ndarray) -> np.ndarray:
-    """Row of the first trip of each CUSUM's current excursion above zero (per series):
-    the trip after the last one where the sum was 0, or the series' first trip. This is
-    the CUSUM's own estimate of when the shift began (Page 1954; Montgomery, *Introduction
-    to Statistical Quality Control*, tabular CUSUM, from memory)."""
-    codes = pd.factorize(np.asarray(key))[0]
-    rows = np.arange(len(c))
-    first = rows - pd.Series(codes).groupby(codes).cumcount().to_numpy()
-    zero = np.where(c <= 0.0, rows[:, None], -1)
-    last_zero = pd.DataFrame(zero).groupby(codes).cummax().to_numpy()
-    return np.where(last_zero < 0, first[:, None], last_zero + 1)
-
-
-def _likely_change_rows(u: np.ndarray, upper: np.ndarray, alarm: np.ndarray, page: np.ndarray,
-                        key: np.ndarray, days: np.ndarray) -> np.ndarray:
-    """Page's excursion starts (``page``), replaced on each run of alarming trips by the
-    maximum-likelihood change point of the series up to the run's first trip
-    (models.drift.change_point: a step or a fault growing from nothing), so that
-    flagged_since does not come late for a fault that grew slowly through the reference
-    value. Rows are series-contiguous (sorted by vehicle and time)."""
-    out = page.copy()
+def _change_rows(u: np.ndarray, upper: np.ndarray, alarm: np.ndarray, key: np.ndarray,
+                 days: np.ndarray) -> np.ndarray:
+    """Row where each alarming statistic's change began (``len(u)`` where it does not
+    alarm): on each run of alarming trips, the maximum-likelihood change point of its
+    series up to the run's first trip (models.drift.change_point: a step, or a fault
+    growing from nothing, for which the CUSUM's last zero, Page's estimate, comes late).
+    Rows are series-contiguous (sorted by vehicle and time)."""
+    out = np.full(u.shape, len(u), dtype=np.int64)
     codes = pd.factorize(np.asarray(key))[0]
     first_row = np.arange(len(codes)) - pd.Series(codes).groupby(codes).cumcount().to_numpy()
     same = np.r_[False, codes[1:] == codes[:-1]]

@@ -45,22 +45,23 @@ def test_missing_trip_leaves_both_sums_unchanged():
     np.testing.assert_allclose(lo[0], [0.0, 0.0, 0.0, 2.5])
 
 
-def test_change_point_estimate_is_the_trip_after_the_cusum_was_last_zero():
-    # Page (1954) / Montgomery's tabular CUSUM (from memory): when C⁺ signals, the shift is
-    # estimated to have begun just after the last period with C⁺ = 0. Two series (vehicles):
-    # the first shifts by 1.5σ at trip 20 of 40, the second never does.
-    from models.scorer import _excursion_start
+def test_each_alarm_run_reaches_back_to_its_own_series_change():
+    # Two series (vehicles) stacked as trips: the first shifts by 1.5σ at trip 20 of 40, the
+    # second never does. Every alarming trip of the first dates its change to about trip 20
+    # (a step: the likelihood estimate, like Page's last zero of the CUSUM, finds it within a
+    # trip or two); the second series never alarms and never reaches back into the first.
+    from models.scorer import _change_rows
 
     rng = np.random.default_rng(4)
     u = rng.normal(0.0, 0.3, (2, 40))
     u[0, 20:] += 1.5
-    hi, _ = tabular_cusum(u, k=0.5)
-    hi = hi.reshape(-1, 1)  # one statistic, the two series stacked as trips
-    key = np.repeat(["A", "B"], 40)
-    start = _excursion_start(hi, key)[:, 0]
-    alarm = int(np.flatnonzero(hi[:40, 0] > 4.0)[0])
-    assert alarm > 20 and abs(int(start[alarm]) - 20) <= 1
-    assert (start[40:] >= 40).all()  # the second series never reaches back into the first
+    hi, lo = tabular_cusum(u, k=0.5)
+    alarm = (np.maximum(hi, lo) > 4.0).reshape(-1, 1)
+    rows = _change_rows(u.reshape(-1, 1), (hi >= lo).reshape(-1, 1), alarm, np.repeat(["A", "B"], 40),
+                        np.arange(80, dtype=float))[:, 0]
+    assert alarm[:40, 0].any() and not alarm[40:, 0].any()
+    assert (np.abs(rows[:40][alarm[:40, 0]] - 20) <= 1).all()
+    assert (rows[~alarm[:, 0]] == 80).all()
 
 
 def _least_squares_change(x, days):
@@ -102,7 +103,6 @@ def test_change_point_finds_a_fault_growing_from_nothing_sooner_than_page():
     # last zero comes late; the likelihood estimate at the first alarm comes sooner and, over
     # many series, is not biased early. NaN trips are skipped.
     from models.drift import change_point
-    from models.scorer import _excursion_start
 
     rng = np.random.default_rng(5)
     page_err, ml_err = [], []
@@ -115,7 +115,7 @@ def test_change_point_finds_a_fault_growing_from_nothing_sooner_than_page():
         if not len(alarm):
             continue
         r = int(alarm[0])
-        page = int(_excursion_start(hi[0, :, None], np.zeros(60))[r, 0])
+        page = int(np.flatnonzero(hi[0, :r] <= 0.0)[-1]) + 1  # the trip after the CUSUM was last zero
         page_err.append(days[page] - 10.0)
         ml_err.append(days[change_point(x[:r + 1], days[:r + 1])] - 10.0)
     assert len(ml_err) > 150
