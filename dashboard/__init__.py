@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import logging
 import os
+import signal
 import subprocess
 import sys
 from pathlib import Path
@@ -51,9 +52,13 @@ def launch(store: Store, port: int = 8501, host: str = "127.0.0.1") -> int:
     env = {**os.environ, STORE_ENV: str(Path(store.root).resolve())}
     print(f"tracktrue dashboard: store {env[STORE_ENV]}, open http://{host}:{port}/", file=sys.stderr)
     proc = subprocess.Popen(streamlit_command(port, host), env=env)
+    # a service manager stops us with SIGTERM: pass it on, or the server outlives us on its port
+    previous = signal.signal(signal.SIGTERM, lambda signum, frame: proc.terminate())
     try:
         return proc.wait()
     except KeyboardInterrupt:
         proc.terminate()
         proc.wait(timeout=10)
         return 130
+    finally:
+        signal.signal(signal.SIGTERM, previous)

@@ -4,8 +4,11 @@ import csv
 import datetime as dt
 import io
 import json
+import os
+import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import duckdb
@@ -236,6 +239,43 @@ def test_a_new_publish_is_shown_on_the_next_run(store):
     reordered = status.iloc[::-1].assign(rank=range(1, len(status) + 1))
     store.publish_table("vehicle_status", reordered)
     assert triage_vehicles(at.run()) == reordered["vehicle_id"].tolist()
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    return True
+
+
+def test_a_terminated_dashboard_stops_its_server(tmp_path):
+    # SIGTERM, how a service manager (or the browser test) stops `tracktrue dashboard`, must
+    # reach the server it started, or the server keeps the port after the command is gone.
+    pidfile = tmp_path / "server.pid"
+    server = f"import os, time; open({str(pidfile)!r}, 'w').write(str(os.getpid())); time.sleep(120)"
+    launcher = ("import sys, dashboard; from tracktrue.store import Store; "
+                f"dashboard.streamlit_command = lambda port, host: [sys.executable, '-c', {server!r}]; "
+                f"sys.exit(dashboard.launch(Store({str(tmp_path)!r})))")
+    proc = subprocess.Popen([sys.executable, "-c", launcher], stderr=subprocess.DEVNULL)
+    server_pid = None
+    try:
+        deadline = time.monotonic() + 30
+        while not (pidfile.exists() and pidfile.read_text().strip()):
+            assert proc.poll() is None and time.monotonic() < deadline
+            time.sleep(0.05)
+        server_pid = int(pidfile.read_text())
+        time.sleep(0.2)  # the launcher is in its wait by now
+        proc.terminate()
+        proc.wait(timeout=20)
+        deadline = time.monotonic() + 10
+        while _alive(server_pid) and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert not _alive(server_pid)
+    finally:
+        proc.kill()
+        if server_pid is not None and _alive(server_pid):
+            os.kill(server_pid, signal.SIGKILL)
 
 
 def test_launch_binds_locally_headless_without_usage_statistics(monkeypatch, capsys, tmp_path):
