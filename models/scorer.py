@@ -372,14 +372,15 @@ class FleetScorer:
         wide["epoch_key"] = vehicle_key
         # where each alarming statistic's change began (_change_rows); flagged_since reaches
         # back to it (see _run_start)
-        days = pd.to_datetime(df["start_time"], utc=True).astype("int64").to_numpy() / 86_400e9
+        started = pd.to_datetime(df["start_time"], utc=True)
+        days = started.astype("int64").to_numpy() / 86_400e9
         begun = np.full(hi.shape, len(df), dtype=np.int64)
         for family in FAMILIES:
             idx = [j for j, c in enumerate(self.statistics_) if statistic_family(c) == family]
             if idx:
                 begun[:, idx] = _change_rows(u.iloc[:, idx].to_numpy(), hi[:, idx] >= lo[:, idx], alarm[:, idx],
                                              keys[family], days)
-        times = np.append(pd.to_datetime(df["start_time"], utc=True).to_numpy(), np.datetime64("NaT"))
+        times = np.append(started.to_numpy(), np.datetime64("NaT"))
         wide["change_since"] = times[begun.min(axis=1, initial=len(df))]
         wide["sensor_change_since"] = times[np.where(sensor_stats[None, :], begun, len(df)).min(axis=1, initial=len(df))]
         for component, hit in confirmed.items():
@@ -823,14 +824,11 @@ def _change_rows(u: np.ndarray, upper: np.ndarray, alarm: np.ndarray, key: np.nd
     same = np.r_[False, codes[1:] == codes[:-1]]
     for j in range(alarm.shape[1]):
         a = alarm[:, j]
-        for r in np.flatnonzero(a & ~(np.r_[False, a[:-1]] & same)):
-            lo_row = first_row[r]
-            sign = 1.0 if upper[r, j] else -1.0
-            est = lo_row + change_point(sign * u[lo_row:r + 1, j], days[lo_row:r + 1])
-            end = r + 1
-            while end < len(a) and a[end] and same[end]:
-                end += 1
-            out[r:end, j] = est
+        run_starts = np.flatnonzero(a & ~(np.r_[False, a[:-1]] & same))
+        estimates = np.array([first_row[r] + change_point((1.0 if upper[r, j] else -1.0) * u[first_row[r]:r + 1, j],
+                                                          days[first_row[r]:r + 1]) for r in run_starts], dtype=np.int64)
+        run = np.cumsum(np.isin(np.arange(len(a)), run_starts)) - 1  # each alarming row's run
+        out[a, j] = estimates[run[a]]
     return out
 
 
