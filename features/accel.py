@@ -40,6 +40,9 @@ WHEEL_ACCEL_MIN_S = 30.0
 #: Lateral intercept is fitted where |v·r| is below this.
 LAT_LOW_MPS2 = 1.5
 LAT_MIN_S = 30.0
+#: The speed-scale witness's slope is fitted up to this |v·r|, and needs this spread of it.
+LAT_SCALE_MAX_MPS2 = 4.0
+LAT_SCALE_MIN_SPREAD_MPS2 = 0.5
 
 
 def accel_rest_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
@@ -158,8 +161,7 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     if reason:
         row.nan(name, reason)
         return
-    ay = trip.smoothed("accel_lat")
-    vr = moving_mean(ref.speed * ref.yaw_rate, window_samples(SMOOTH_S, trip.rate_hz))
+    ay, vr = trip.smoothed("accel_lat"), _wheel_vr(trip, ref)
     with np.errstate(invalid="ignore"):
         usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_LOW_MPS2)
                   & np.isfinite(ay) & np.isfinite(vr))
@@ -173,3 +175,39 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     else:
         intercept = median(y)
     row.set(name, intercept / G0_MPS2)
+
+
+def lat_scale_witness(trip: TripArrays, spec: VehicleSpec, windows: Windows, ref: WheelReference) -> dict[str, float]:
+    """scale_ay_per_vr: the least-squares slope of a_y on v·r_wheels over steady cornering, |v·r| < 4 m/s².
+
+    A witness of the wheels' common speed scale, for models/ (not a model
+    feature). With true speed v and rolling radii all k times their nominal
+    value (a new set of tyres: deeper tread), the wheels report v/k and
+    v·r_wheels = v·r/k², so the slope of a_y = v·r on it is k² — while a
+    yaw-rate *gain* error, which moves yaw_gain and yaw against steering just
+    as k does, leaves it alone: it uses neither the yaw sensor nor steering.
+    Roll tilts the accelerometer in proportion to a_y, so the slope also holds
+    a per-vehicle constant (and a load-dependent part), which only changes
+    matter for. NaN where the lateral intercept would be, or without 0.5 m/s²
+    spread of v·r.
+    """
+    nan = {"scale_ay_per_vr": np.nan}
+    if wheel_yaw_reason(trip, spec, ref, "accel_lat"):
+        return nan
+    ay, vr = trip.smoothed("accel_lat"), _wheel_vr(trip, ref)
+    with np.errstate(invalid="ignore"):
+        usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_SCALE_MAX_MPS2)
+                  & np.isfinite(ay) & np.isfinite(vr))
+    if seconds(usable, trip) < LAT_MIN_S:
+        return nan
+    x, y = vr.compress(usable), ay.compress(usable)
+    if np.std(x) < LAT_SCALE_MIN_SPREAD_MPS2:
+        return nan
+    dx = x - x.mean()
+    return {"scale_ay_per_vr": float(np.sum(dx * (y - y.mean())) / np.sum(dx * dx))}
+
+
+def _wheel_vr(trip: TripArrays, ref: WheelReference) -> np.ndarray:
+    """v·r from the calibrated rear axle, smoothed over 1 s (the lateral intercept and the scale witness share it)."""
+    width = window_samples(SMOOTH_S, trip.rate_hz)
+    return trip.cached("wheel_vr", lambda: moving_mean(ref.speed * ref.yaw_rate, width))

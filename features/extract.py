@@ -15,6 +15,7 @@ from features.accel import (
     accel_long_residual_feature,
     accel_rest_features,
     lat_residual_feature,
+    lat_scale_witness,
     wheel_accel_features,
 )
 from features.columns import SampleColumns, n_rows, sample_columns
@@ -50,12 +51,14 @@ RESOLUTION_COLUMNS: tuple[str, ...] = tuple(f"resolution_{s}" for s in NUMERIC_S
 STEERFIT_COLUMNS: tuple[str, ...] = (
     "steerfit_rr", "steerfit_rrv2", "steerfit_rrv4", "steerfit_rvs", "steerfit_rv3s", "steerfit_s",
 )
+#: Witnesses for models/ that are not model features: the wheels' common speed scale (features.accel).
+SCALE_COLUMNS: tuple[str, ...] = ("scale_ay_per_vr",)
 #: What the on-board monitor said during the trip (models/ tells lamp events from interventions).
 LAMP_COLUMNS: tuple[str, ...] = ("lamp_abs_on", "lamp_esc_on", "dtc")
 #: Every column extract_trip_features returns, in order.
 ROW_COLUMNS: tuple[str, ...] = (
     *FEATURE_COLUMNS, *QUALITY_COLUMNS, "signals", *GATING_COLUMNS, *RESOLUTION_COLUMNS, *LAMP_COLUMNS,
-    *STEERFIT_COLUMNS, "nan_reasons",
+    *STEERFIT_COLUMNS, *SCALE_COLUMNS, "nan_reasons",
 )
 #: Signals whose missing samples count towards missing_fraction (when logged at all).
 CORE_SIGNALS: tuple[str, ...] = tuple(s for s in NUMERIC_SIGNALS if s != "vehicle_speed")
@@ -106,6 +109,7 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
     out.update(_quality(trip, windows, distance_km))
     out.update(_lamps(columns))
     out.update(steering_fit_sums(trip, vehicle, windows))
+    out.update(lat_scale_witness(trip, vehicle, windows, ref))
     return {c: out[c] for c in ROW_COLUMNS}
 
 
@@ -139,7 +143,8 @@ def _lamps(columns: SampleColumns) -> dict[str, object]:
 
 
 def _empty_quality() -> dict[str, object]:
-    out: dict[str, object] = dict.fromkeys((*QUALITY_COLUMNS, *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS), np.nan)
+    unknown = (*QUALITY_COLUMNS, *RESOLUTION_COLUMNS, *STEERFIT_COLUMNS, *SCALE_COLUMNS)
+    out: dict[str, object] = dict.fromkeys(unknown, np.nan)
     out.update({"duration_s": 0.0, "distance_km": 0.0, "missing_fraction": 1.0,
                 "standstill_s": 0.0, "cruise_s": 0.0, "moving_s": 0.0, "signals": ""})
     return out

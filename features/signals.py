@@ -8,7 +8,7 @@ NaN and ``has(name)`` is False.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -51,6 +51,12 @@ class TripArrays:
         key = ("smoothed", name)
         if key not in self._memo:
             self._memo[key] = moving_mean(self.signal(name), window_samples(SMOOTH_S, self.rate_hz))
+        return self._memo[key]
+
+    def cached(self, key: str, compute: Callable[[], np.ndarray]) -> np.ndarray:
+        """A derived trace several features share, computed once per trip (``key`` names it)."""
+        if key not in self._memo:
+            self._memo[key] = compute()
         return self._memo[key]
 
     @property

@@ -65,7 +65,7 @@ from models.drift import baseline_error, change_point, required_arl0, tabular_cu
 from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
 from models.ordering import SENSOR_COMPONENTS, ranked
-from models.service import FAMILIES, epoch_keys, service_table, statistic_family
+from models.service import FAMILIES, WHEEL_SCALE_STATISTICS, epoch_keys, service_table, statistic_family
 from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
 from tracktrue.schema import POSITIONS
 
@@ -295,16 +295,19 @@ class FleetScorer:
             keys[family] = key
             if not cols:
                 continue
-            codes = pd.factorize(key)[0]
-            order = pd.Series(codes).groupby(codes).cumcount().to_numpy()
-            expanding = stats[cols].reset_index(drop=True).groupby(codes).expanding(
-                min_periods=self.min_baseline_trips).median().reset_index(level=0, drop=True).sort_index()
-            upto = np.maximum(self.baseline_trips, order - self.baseline_lag_trips)  # exclusive end
-            size = pd.Series(order).groupby(codes).transform("size").to_numpy()
-            row = np.arange(len(df)) - order + np.minimum(upto, size) - 1  # series are contiguous rows
-            base[cols] = expanding.to_numpy()[row]
-            in_base[cols] = np.repeat((order < self.baseline_trips)[:, None], len(cols), axis=1)
+            base[cols], in_base[cols] = self._lagged_baseline(stats[cols], key)
         return base, in_base, keys
+
+    def _lagged_baseline(self, values: pd.DataFrame, key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(baseline, in-baseline mask) of ``values`` per series of ``key``, by _baselines' rule."""
+        codes = pd.factorize(key)[0]
+        order = pd.Series(codes).groupby(codes).cumcount().to_numpy()
+        expanding = values.reset_index(drop=True).groupby(codes).expanding(
+            min_periods=self.min_baseline_trips).median().reset_index(level=0, drop=True).sort_index()
+        upto = np.maximum(self.baseline_trips, order - self.baseline_lag_trips)  # exclusive end
+        size = pd.Series(order).groupby(codes).transform("size").to_numpy()
+        row = np.arange(len(values)) - order + np.minimum(upto, size) - 1  # series are contiguous rows
+        return expanding.to_numpy()[row], np.repeat((order < self.baseline_trips)[:, None], values.shape[1], axis=1)
 
     # ------------------------------------------------------------ scoring
     def score_trips(self, trip_features: pd.DataFrame) -> pd.DataFrame:
@@ -341,6 +344,8 @@ class FleetScorer:
             if idx:
                 hi[:, idx], lo[:, idx] = _cusum_by_group(u.iloc[:, idx], keys[family], self.cusum_k)
         strength = self._relevant(np.maximum(hi, lo) / self.cusum_h_, (stats - base).mask(in_base), keys)
+        strength = self._scale_explained(strength, trip_features.set_index("trip_id").reindex(df["trip_id"]),
+                                         keys["tyre"])
         alarm = strength > 1.0
         vehicle_key = keys["sensor"]
         rolling = (df.groupby(vehicle_key)["score"]
@@ -421,6 +426,50 @@ class FleetScorer:
                     lambda c: c.rolling(self.vehicle_trips, min_periods=self.min_trips).median())
                 moved[:, idx] = level.abs().to_numpy() >= self.min_change_z
         return np.where(moved, strength, np.minimum(strength, 1.0))
+
+    def _scale_explained(self, strength: np.ndarray, features: pd.DataFrame, key: np.ndarray) -> np.ndarray:
+        """Strengths of the wheel-scale statistics (models.service.WHEEL_SCALE_STATISTICS) capped at 1
+        while a change of the wheels' common speed scale explains the yaw gain's change better than
+        the yaw sensor does.
+
+        New tyres all round (k times the rolling radius) make the wheels read v/k: the yaw gain
+        against the wheels becomes k·g and yaw against the single-track model moves with it, the
+        two "independent" witnesses of a yaw gain error, while the slope of a_y on v·r_wheels
+        (features.accel.lat_scale_witness) becomes k². A yaw-rate gain error g leaves that slope
+        alone. So, from the rolling medians of both logs' changes against the vehicle's lagged
+        baseline (since its last tyre event), Δ ln slope ≈ 2·Δ ln gain says tyres and ≈ 0 says the
+        sensor; closer to the former (same sign, |Δ ln slope| > |Δ ln gain|) caps them.
+        """
+        names = [c for c in ("yaw_gain", "scale_ay_per_vr") if c in features.columns]
+        scale_stats = [j for j, c in enumerate(self.statistics_) if c in WHEEL_SCALE_STATISTICS]
+        if len(names) < 2 or not scale_stats:
+            return strength
+        with np.errstate(invalid="ignore", divide="ignore"):
+            logs = np.log(features[names].astype(float).where(features[names] > 0)).reset_index(drop=True)
+        base, in_base = self._lagged_baseline(logs, key)
+        change = (logs - base).mask(in_base)
+        # the last min_trips trips see a step as soon as the CUSUM does (a median of ten moves only
+        # once half its trips are past it), the last vehicle_trips more surely later on: each trip
+        # asks the window in which the gain has moved further
+        short, long = ([self._recent_median(change[c], key, w) for c in names]
+                       for w in (self.min_trips, self.vehicle_trips))
+        with np.errstate(invalid="ignore"):
+            use_short = np.abs(short[0]) > np.abs(long[0])
+        gain, scale = (np.where(use_short, s, w) for s, w in zip(short, long))
+        with np.errstate(invalid="ignore"):
+            explained = (gain * scale > 0) & (np.abs(scale) > np.abs(gain))
+        out = strength.copy()
+        out[np.ix_(explained, scale_stats)] = np.minimum(out[np.ix_(explained, scale_stats)], 1.0)
+        return out
+
+    def _recent_median(self, values: pd.Series, key: np.ndarray, window: int) -> np.ndarray:
+        """Median of each series' last ``window`` measured values (at least min_trips), carried over
+        trips where the value is missing."""
+        measured = values.dropna()
+        groups = pd.Series(key, index=values.index)
+        level = measured.groupby(groups[measured.index].to_numpy()).transform(
+            lambda c: c.rolling(window, min_periods=self.min_trips).median())
+        return level.reindex(values.index).groupby(key).ffill().to_numpy()
 
     def _corroborated(self, strength: np.ndarray, wheels_agree: np.ndarray, names: list[str] | None = None,
                       measured: np.ndarray | None = None, sole: float = 1.0) -> dict[str, np.ndarray]:

@@ -80,6 +80,22 @@ def test_lateral_residual_is_zero_when_a_y_equals_v_times_r_and_finds_an_offset(
     assert biased["lat_residual_g"] == pytest.approx(0.03, abs=0.003)
 
 
+def test_speed_scale_witness_sees_a_set_of_new_tyres_and_not_a_yaw_gain_error():
+    # CHECKS.md: a_y = V*r. Wheels reading (1 + e) times the true speed (all four rolling radii
+    # off by the same factor) give v*r_wheels = (1 + e)^2 * V*r, so the slope of a_y on it is
+    # 1/(1 + e)^2, and yaw_gain (yaw against the wheels) 1/(1 + e); a yaw-rate gain error g moves
+    # yaw_gain by g and leaves the slope alone (it uses neither the yaw sensor nor steering).
+    e, g = 0.01, 1.02
+    clean = extract_trip_features(make_trip(seed=7), SPEC)
+    tyres = extract_trip_features(make_trip(seed=7, radius_error=(e, e, e, e)), SPEC)
+    sensor = extract_trip_features(make_trip(seed=7, yaw_gain=g), SPEC)
+    assert clean["scale_ay_per_vr"] == pytest.approx(1.0, abs=0.01)
+    assert tyres["scale_ay_per_vr"] / clean["scale_ay_per_vr"] == pytest.approx(1 / (1 + e) ** 2, abs=3e-4)
+    assert tyres["yaw_gain"] / clean["yaw_gain"] == pytest.approx(1 / (1 + e), abs=3e-4)
+    assert sensor["scale_ay_per_vr"] == pytest.approx(clean["scale_ay_per_vr"], abs=3e-4)
+    assert sensor["yaw_gain"] / clean["yaw_gain"] == pytest.approx(g, abs=3e-3)
+
+
 def test_accelerometer_at_rest_on_a_grade_reads_g_sin_theta():
     # A still accelerometer reads the gravity component g*sin(theta) along x
     # (textbook statics); 5 % grade -> theta = atan(0.05), sin = 0.049938.
