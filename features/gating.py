@@ -79,8 +79,11 @@ from tracktrue.schema import POSITIONS, WHEEL_SPEED_COLUMNS
 from tracktrue.signal_quality import MOVING_MPS, fresh_rate, moving_seconds
 from tracktrue.units import DEG_RAD, G0_MPS2, KPH_MPS
 
-#: Columns the gates add to a trip's row.
-GATING_COLUMNS: tuple[str, ...] = ("logger_kind",)
+#: Columns the gates add to a trip's row: the logger kind, and which sources judged the straight
+#: road of the steering centre (``yaw_and_wheels``, ``yaw`` where the wheels were too coarse to
+#: vote and the yaw sensor alone did, empty where there is no centre).
+STEER_CENTER_JUDGE = "steer_center_straight_by"
+GATING_COLUMNS: tuple[str, ...] = ("logger_kind", STEER_CENTER_JUDGE)
 LOGGER_KINDS: tuple[str, ...] = ("bus_capture", "polled", "telematics")
 POLLED_BELOW_HZ = 8.0
 POLLED_STEP_ABOVE_MPS = 0.05 * KPH_MPS
@@ -202,8 +205,7 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     front_yaw = (("wheel_speed_fl", 1.0 / (t_f * DEG_RAD)), ("wheel_speed_fr", 1.0 / (t_f * DEG_RAD)))
 
     def vote(tolerance_radps: float, inputs=wheels_yaw) -> Gate:
-        """Quantisation alone must stay under half a vote's tolerance over its 1 s comparison (SMOOTH_S)."""
-        return Gate("averaged", inputs, tolerance_radps / DEG_RAD / 2.0, average_s=SMOOTH_S)
+        return vote_gate(tolerance_radps, inputs)
 
     axles = vote(AXLE_AGREE_RADPS, wheels_yaw + front_yaw)
     straight = vote(STRAIGHT_YAW_RADPS)
@@ -236,7 +238,7 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
                 0.05 / 3, average_s=YAW_GAIN_MIN_TURN_S)
     gates["yaw_offset_dps"] = [offset, axles]
     gates["yaw_gain"] = [gain, axles]
-    gates["steer_center_deg"] = [Gate("held", (("steering_angle", 1.0 / DEG_RAD),), 1.0), straight]
+    gates["steer_center_deg"] = [_steering_centre_held(), straight]
     model_dps = v / (spec.steering_ratio * spec.wheelbase_m * DEG_RAD)  # single-track r per steering-wheel rad
     gates["steer_yaw_residual_dps"] = [
         Gate("averaged", (("yaw_rate", yaw_dps), ("steering_angle", model_dps)), 0.5 / 3,
@@ -252,6 +254,25 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     return gates
 
 
+def vote_gate(tolerance_radps: float, inputs: tuple[tuple[str, float], ...]) -> Gate:
+    """A vote's gate: quantisation alone must stay under half its tolerance over its 1 s comparison (SMOOTH_S)."""
+    return Gate("averaged", inputs, tolerance_radps / DEG_RAD / 2.0, average_s=SMOOTH_S)
+
+
+def _steering_centre_held() -> Gate:
+    """A median of the steering angle held still: its step must stay under 1 deg (a third of 3 deg)."""
+    return Gate("held", (("steering_angle", 1.0 / DEG_RAD),), 1.0)
+
+
+def alternative_gates() -> dict[str, list[Gate]]:
+    """Gates of the values features measure a second way (FeatureRow.alternatives), taken where a
+    feature's own gates fail: the steering centre on the straight road the yaw sensor alone finds,
+    for logs whose wheel speeds are too coarse to vote on straightness (a 1 km/h step is 10 deg/s of
+    wheel yaw). Its vote's quantisation must stay under half the vote's tolerance, as the wheels' must."""
+    yaw_vote = vote_gate(STRAIGHT_YAW_RADPS, (("yaw_rate", 1.0 / DEG_RAD),))
+    return {"steer_center_deg": [_steering_centre_held(), yaw_vote]}
+
+
 def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[str, object]:
     """Apply every feature's gates to ``row`` (module docstring); returns the GATING_COLUMNS."""
     speed = _moving_speed(trip)
@@ -261,11 +282,16 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
         moving = np.ones(trip.n, bool)
     moving_s = moving_seconds(trip.t, moving, capped_steps=trip.dt[:-1])  # TripArrays.dt holds the capped steps
     figures = signal_figures(trip, moving, moving_s)
+    judged_by = {}
     for name, checks in gates.items():
         if name not in row.values:
             continue
         if any(s not in figures for gate in checks for s, _ in gate.inputs):
             row.nan(name, "signal_missing")
+            continue
+        own_gate_fails = any(gate.failure(figures, moving_s) for gate in checks)
+        if own_gate_fails and _take_alternative(row, name, figures, moving_s):
+            judged_by[name] = "yaw"
             continue
         if not math.isfinite(row.values[name]):
             continue
@@ -274,7 +300,21 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
             if reason:
                 row.nan(name, reason)
                 break
-    return {"logger_kind": logger_kind(figures)}
+    centre_judge = judged_by.get("steer_center_deg", "yaw_and_wheels")
+    return {"logger_kind": logger_kind(figures),
+            STEER_CENTER_JUDGE: centre_judge if math.isfinite(row.values.get("steer_center_deg", math.nan)) else ""}
+
+
+def _take_alternative(row: FeatureRow, name: str, figures: dict[str, Figures], moving_s: float) -> bool:
+    """Put ``name``'s alternative value in its place if it has one, finite, whose gates pass."""
+    checks = alternative_gates().get(name)
+    value = row.alternatives.get(name, math.nan)
+    if not checks or not math.isfinite(value) or any(s not in figures for g in checks for s, _ in g.inputs):
+        return False
+    if any(gate.failure(figures, moving_s) for gate in checks):
+        return False
+    row.set(name, value)
+    return True
 
 
 def _moving_speed(trip: TripArrays) -> np.ndarray:

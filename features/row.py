@@ -16,10 +16,14 @@ class FeatureRow:
     def __init__(self) -> None:
         self.values: dict[str, float] = {}
         self.reasons: dict[str, str] = {}
+        #: a value measured another way, for the gates to use where the feature's own inputs
+        #: are too coarse for it (features.gating ALTERNATIVE_JUDGES)
+        self.alternatives: dict[str, float] = {}
 
     def set(self, name: str, value: float, reason_if_nan: str = "not_finite") -> None:
         value = float(value)
         self.values[name] = value
+        self.reasons.pop(name, None)
         if not math.isfinite(value):
             self.values[name] = math.nan
             self.reasons[name] = reason_if_nan

@@ -11,12 +11,14 @@ from collections.abc import Sequence
 import pandas as pd
 
 from features.extract import ROW_COLUMNS
+from features.gating import STEER_CENTER_JUDGE
 
 ID_COLUMNS: tuple[str, ...] = ("trip_id", "vehicle_id", "start_time", "platform")
 #: Partition key of trip_features: one file per month, not one per trip.
 MONTH_COLUMN = "start_month"
 TRIP_FEATURES_COLUMNS: tuple[str, ...] = (*ID_COLUMNS, *ROW_COLUMNS, MONTH_COLUMN)
-_TEXT = ("trip_id", "vehicle_id", "platform", "signals", "logger_kind", "dtc", "nan_reasons", MONTH_COLUMN)
+_TEXT = ("trip_id", "vehicle_id", "platform", "signals", "logger_kind", STEER_CENTER_JUDGE, "dtc", "nan_reasons",
+         MONTH_COLUMN)
 _BOOL = ("lamp_abs_on", "lamp_esc_on")
 #: Every column's dtype but start_time's, which keeps the unit of the trips table it comes from.
 DTYPES: dict[str, object] = {

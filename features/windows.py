@@ -65,6 +65,7 @@ class Windows:
     standstill: np.ndarray
     cruise: np.ndarray  #: straight cruise, by two-of-three vote
     straight_by_yaw_and_wheels: np.ndarray  #: cruise judged without the steering sensor
+    straight_by_yaw: np.ndarray  #: cruise judged by the yaw sensor alone (for wheels too coarse to vote)
     calm: np.ndarray  #: moving without brake or hard longitudinal acceleration
     rolling: np.ndarray  #: no wheel reads (near) zero within 1 s: wheels can be compared
     standstill_reason: str | None  #: why standstill cannot be judged, if so
@@ -91,8 +92,10 @@ def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
         both = keep_runs(fast_calm & votes["yaw"] & votes["wheels"], trip, CRUISE_MIN_S)
     else:
         both = np.zeros(trip.n, dtype=bool)
+    by_yaw = keep_runs(fast_calm & votes["yaw"], trip, CRUISE_MIN_S) if "yaw" in votes else np.zeros(trip.n, bool)
     return Windows(speed=speed, accel=accel, moving=moving, standstill=standstill, cruise=cruise,
-                   straight_by_yaw_and_wheels=both, calm=calm, rolling=_rolling_everywhere(trip),
+                   straight_by_yaw_and_wheels=both, straight_by_yaw=by_yaw, calm=calm,
+                   rolling=_rolling_everywhere(trip),
                    standstill_reason=standstill_reason, straight_reason=straight_reason)
 
 

@@ -121,14 +121,26 @@ def yaw_regression_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec
 
 
 def steer_center_feature(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
-    """steer_center_deg = median steering-wheel angle while yaw sensor and wheels agree on straight, in deg."""
+    """steer_center_deg = median steering-wheel angle while yaw sensor and wheels agree on straight, in deg.
+
+    Also the same median where the yaw sensor alone says straight, as the alternative the gates
+    take where the wheels are too coarse to vote (features.gating ALTERNATIVE_JUDGES): its vote
+    is centred on the trip's own median at speed, so a yaw offset cannot tilt it, and a yaw gain
+    error does not move where straight is.
+    """
     if not trip.has("steering_angle"):
         row.nan("steer_center_deg", "signal_missing")
-    elif seconds(windows.straight_by_yaw_and_wheels, trip) < STEER_CENTER_MIN_S:
+        return
+    if seconds(windows.straight_by_yaw_and_wheels, trip) < STEER_CENTER_MIN_S:
         row.nan("steer_center_deg", windows.straight_reason or "no_straight_cruise")
     else:
-        values = trip.signals["steering_angle"][windows.straight_by_yaw_and_wheels]
-        row.set("steer_center_deg", _to_deg(nan_median(values)))
+        row.set("steer_center_deg", _straight_median_deg(trip, windows.straight_by_yaw_and_wheels))
+    if seconds(windows.straight_by_yaw, trip) >= STEER_CENTER_MIN_S:
+        row.alternatives["steer_center_deg"] = _straight_median_deg(trip, windows.straight_by_yaw)
+
+
+def _straight_median_deg(trip: TripArrays, straight: np.ndarray) -> float:
+    return _to_deg(nan_median(trip.signals["steering_angle"][straight]))
 
 
 def model_yaw_rate(trip: TripArrays, spec: VehicleSpec, speed: np.ndarray, centre_rad: float = 0.0) -> np.ndarray:

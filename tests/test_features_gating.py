@@ -89,8 +89,12 @@ def test_a_quantised_stale_polled_log_of_a_healthy_vehicle_moves_no_feature_beyo
     assert not problems, "\n".join(problems)
     # DESIGN.md: a 1 km/h step across a ~1.5 m track is ~10 deg/s of wheel yaw: every feature that
     # compares with the wheel yaw must say so rather than report it
-    for f in ("yaw_offset_dps", "yaw_gain", "lat_residual_g", "steer_center_deg"):
+    for f in ("yaw_offset_dps", "yaw_gain", "lat_residual_g"):
         assert why.get(f) in GATING_REASONS, (f, row[f], why.get(f))
+    # ... except the steering centre, whose straight road the yaw sensor then judges alone
+    # (features.gating.alternative_gates): measured, within the healthy spread (checked above)
+    assert row["steer_center_straight_by"] == "yaw" and bus["steer_center_straight_by"] == "yaw_and_wheels"
+    assert math.isfinite(row["steer_center_deg"])
     for p in POSITIONS:  # a 2 Hz log cannot carry a 1.5 s derivative or a 2 s high-pass
         assert why[f"wheel_accel_disagree_{p}_g"] == "rate_too_low"
         assert why[f"wheel_jitter_{p}_pct"] in GATING_REASONS
@@ -179,3 +183,18 @@ def test_moving_seconds_from_the_trips_steps_equal_ingests_to_the_bit():
         trip = trip_arrays({"time": stamps})
         moving = rng.random(n) < rng.random()
         assert moving_seconds(trip.t, moving, capped_steps=trip.dt[:-1]) == moving_seconds(trip.t, moving)
+
+
+@pytest.mark.parametrize(("rate_hz", "step_kph", "judge"), [(2.0, 1.0, "yaw"), (5.0, 0.1, "yaw_and_wheels")])
+def test_wheels_too_coarse_to_vote_leave_the_steering_centre_to_the_yaw_sensor(rate_hz, step_kph, judge):
+    # a 1 km/h step across the track is ~10 deg/s of wheel yaw, far beyond the straight vote's
+    # 1.5 deg/s: the yaw sensor alone judges straight road, and the centre still finds the
+    # injected steering offset (synthetic_fleet.faults: 7 deg of steering-wheel angle at severity 1)
+    rows = {}
+    for fault in (None, "steer_offset"):
+        samples, spec = synthetic_fleet.trip_samples(seed=3, fault=fault, duration_s=DURATION_S, logger_kind="polled",
+                                                     rate_hz=rate_hz, wheel_step_kph=step_kph)
+        rows[fault] = extract_trip_features(samples, spec)
+        assert rows[fault]["steer_center_straight_by"] == judge
+    shift = rows["steer_offset"]["steer_center_deg"] - rows[None]["steer_center_deg"]
+    assert shift == pytest.approx(7.0, abs=0.5)
