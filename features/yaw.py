@@ -124,7 +124,7 @@ def steer_center_feature(row: FeatureRow, trip: TripArrays, windows: Windows) ->
     """steer_center_deg = median steering-wheel angle while yaw sensor and wheels agree on straight, in deg.
 
     Also the same median where the yaw sensor alone says straight, as the alternative the gates
-    take where the wheels are too coarse to vote (features.gating ALTERNATIVE_JUDGES): its vote
+    take where the wheels are too coarse to vote (features.gating.alternative_gates): its vote
     is centred on the trip's own median at speed, so a yaw offset cannot tilt it, and a yaw gain
     error does not move where straight is.
     """
