@@ -17,7 +17,7 @@ class FeatureRow:
         self.values: dict[str, float] = {}
         self.reasons: dict[str, str] = {}
         #: a value measured another way, for the gates to use where the feature's own inputs
-        #: are too coarse for it (features.gating ALTERNATIVE_JUDGES)
+        #: are too coarse for it (features.gating.alternative_gates)
         self.alternatives: dict[str, float] = {}
 
     def set(self, name: str, value: float, reason_if_nan: str = "not_finite") -> None:
