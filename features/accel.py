@@ -161,17 +161,14 @@ def lat_residual_feature(row: FeatureRow, trip: TripArrays, spec: VehicleSpec,
     if reason:
         row.nan(name, reason)
         return
-    ay, vr = trip.smoothed("accel_lat"), _wheel_vr(trip, ref)
-    with np.errstate(invalid="ignore"):
-        usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_LOW_MPS2)
-                  & np.isfinite(ay) & np.isfinite(vr))
-    if seconds(usable, trip) < LAT_MIN_S:
+    steady = _steady_lateral(trip, windows, ref, LAT_LOW_MPS2)
+    if steady is None:
         row.nan(name, "too_little_driving")
         return
-    x, y = vr[usable], ay[usable] - vr[usable]
-    if np.std(x) > 0.05:  # least-squares line, in centred form (what np.polyfit(x, y, 1) solves)
-        dx = x - x.mean()
-        intercept = y.mean() - np.sum(dx * (y - y.mean())) / np.sum(dx * dx) * x.mean()
+    x, ay = steady
+    y = ay - x
+    if np.std(x) > 0.05:  # least-squares line
+        intercept = y.mean() - _slope(x, y) * x.mean()
     else:
         intercept = median(y)
     row.set(name, intercept / G0_MPS2)
@@ -194,17 +191,28 @@ def lat_scale_witness(trip: TripArrays, spec: VehicleSpec, windows: Windows, ref
     nan = {"scale_ay_per_vr": np.nan}
     if wheel_yaw_reason(trip, spec, ref, "accel_lat"):
         return nan
+    steady = _steady_lateral(trip, windows, ref, LAT_SCALE_MAX_MPS2)
+    if steady is None or np.std(steady[0]) < LAT_SCALE_MIN_SPREAD_MPS2:
+        return nan
+    return {"scale_ay_per_vr": float(_slope(*steady))}
+
+
+def _steady_lateral(trip: TripArrays, windows: Windows, ref: WheelReference,
+                    limit_mps2: float) -> tuple[np.ndarray, np.ndarray] | None:
+    """(v·r_wheels, a_y) on steady cornering with |v·r| below ``limit_mps2``; None below LAT_MIN_S of it."""
     ay, vr = trip.smoothed("accel_lat"), _wheel_vr(trip, ref)
     with np.errstate(invalid="ignore"):
-        usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < LAT_SCALE_MAX_MPS2)
+        usable = (steady_reference_window(trip, windows, ref) & (np.abs(vr) < limit_mps2)
                   & np.isfinite(ay) & np.isfinite(vr))
     if seconds(usable, trip) < LAT_MIN_S:
-        return nan
-    x, y = vr.compress(usable), ay.compress(usable)
-    if np.std(x) < LAT_SCALE_MIN_SPREAD_MPS2:
-        return nan
+        return None
+    return vr[usable], ay[usable]
+
+
+def _slope(x: np.ndarray, y: np.ndarray) -> float:
+    """Least-squares slope of y on x, in centred form (what np.polyfit(x, y, 1) solves)."""
     dx = x - x.mean()
-    return {"scale_ay_per_vr": float(np.sum(dx * (y - y.mean())) / np.sum(dx * dx))}
+    return np.sum(dx * (y - y.mean())) / np.sum(dx * dx)
 
 
 def _wheel_vr(trip: TripArrays, ref: WheelReference) -> np.ndarray:

@@ -204,12 +204,9 @@ def feature_gates(spec: VehicleSpec, speed_mps: float) -> dict[str, list[Gate]]:
     wheels_yaw = (("wheel_speed_rl", rear_yaw_dps), ("wheel_speed_rr", rear_yaw_dps))
     front_yaw = (("wheel_speed_fl", 1.0 / (t_f * DEG_RAD)), ("wheel_speed_fr", 1.0 / (t_f * DEG_RAD)))
 
-    def vote(tolerance_radps: float, inputs=wheels_yaw) -> Gate:
-        return vote_gate(tolerance_radps, inputs)
-
-    axles = vote(AXLE_AGREE_RADPS, wheels_yaw + front_yaw)
-    straight = vote(STRAIGHT_YAW_RADPS)
-    turning = vote(STEER_TURN_MIN_RADPS)
+    axles = vote_gate(AXLE_AGREE_RADPS, wheels_yaw + front_yaw)
+    straight = vote_gate(STRAIGHT_YAW_RADPS, wheels_yaw)
+    turning = vote_gate(STEER_TURN_MIN_RADPS, wheels_yaw)
     gates: dict[str, list[Gate]] = {}
     for pos in POSITIONS:
         own = f"wheel_speed_{pos}"
@@ -282,6 +279,7 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
         moving = np.ones(trip.n, bool)
     moving_s = moving_seconds(trip.t, moving, capped_steps=trip.dt[:-1])  # TripArrays.dt holds the capped steps
     figures = signal_figures(trip, moving, moving_s)
+    alternatives = alternative_gates()
     judged_by = {}
     for name, checks in gates.items():
         if name not in row.values:
@@ -289,25 +287,19 @@ def gate_features(row: FeatureRow, trip: TripArrays, spec: VehicleSpec) -> dict[
         if any(s not in figures for gate in checks for s, _ in gate.inputs):
             row.nan(name, "signal_missing")
             continue
-        own_gate_fails = any(gate.failure(figures, moving_s) for gate in checks)
-        if own_gate_fails and _take_alternative(row, name, figures, moving_s):
+        reason = next((r for r in (gate.failure(figures, moving_s) for gate in checks) if r), None)
+        if reason and _take_alternative(row, name, alternatives.get(name), figures, moving_s):
             judged_by[name] = "yaw"
-            continue
-        if not math.isfinite(row.values[name]):
-            continue
-        for gate in checks:
-            reason = gate.failure(figures, moving_s)
-            if reason:
-                row.nan(name, reason)
-                break
+        elif reason and math.isfinite(row.values[name]):
+            row.nan(name, reason)
     centre_judge = judged_by.get("steer_center_deg", "yaw_and_wheels")
     return {"logger_kind": logger_kind(figures),
             STEER_CENTER_JUDGE: centre_judge if math.isfinite(row.values.get("steer_center_deg", math.nan)) else ""}
 
 
-def _take_alternative(row: FeatureRow, name: str, figures: dict[str, Figures], moving_s: float) -> bool:
-    """Put ``name``'s alternative value in its place if it has one, finite, whose gates pass."""
-    checks = alternative_gates().get(name)
+def _take_alternative(row: FeatureRow, name: str, checks: list[Gate] | None, figures: dict[str, Figures],
+                      moving_s: float) -> bool:
+    """Put ``name``'s alternative value in its place if it has one, finite, whose gates ``checks`` pass."""
     value = row.alternatives.get(name, math.nan)
     if not checks or not math.isfinite(value) or any(s not in figures for g in checks for s, _ in g.inputs):
         return False

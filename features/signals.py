@@ -525,7 +525,7 @@ def _bracketed_median(row: np.ndarray) -> float:
     between two of its order statistics ±4 standard errors of rank (√s/2 in
     a sample of s) from its middle; counting the values below and within the
     bracket gives the ranks, and only the bracket's values are partitioned
-    (Floyd & Rivest's SELECT, 1975, with the sample taken by stride). The same
+    (Floyd & Rivest's SELECT, 1975, from memory; here the sample is taken by stride). The same
     two order statistics as a whole partition, so the same value to the
     last bit; where the bracket misses the middle ranks (a row ordered so
     that the stride sees an unrepresentative sample), the whole row is

@@ -84,6 +84,10 @@ TYRE_WATCH_RADIUS_PCT = 0.5
 TYRE_PATTERN_SHARE = 0.9
 
 
+#: The yaw gain and the wheels' speed-scale witness (features.accel.lat_scale_witness), for _scale_explained.
+SCALE_WITNESS_INPUTS: tuple[str, ...] = ("yaw_gain", "scale_ay_per_vr")
+
+
 class FleetScorer:
     """Rank a fleet's vehicles by sensor disagreement (see module doc for the method)."""
 
@@ -330,7 +334,8 @@ class FleetScorer:
     def drift(self, trip_features: pd.DataFrame, trip_scores: pd.DataFrame) -> pd.DataFrame:
         """VEHICLE_DRIFT_COLUMNS long table, plus the per-trip ``alert`` in a wide frame (``.attrs``)."""
         df = trip_scores[["trip_id", "vehicle_id", "start_time", "peer_group", "score"]].copy()
-        feats = trip_features.set_index("trip_id").loc[df["trip_id"], self.features_].reset_index(drop=True)
+        by_trip = trip_features.set_index("trip_id")
+        feats = by_trip.loc[df["trip_id"], self.features_].reset_index(drop=True)
         stats = self._drift_statistics(pd.concat([df, feats], axis=1))[self.statistics_]
         base, in_base, keys = self._baselines(df, stats)
         groups = trip_scores["peer_group"].to_numpy()
@@ -344,8 +349,8 @@ class FleetScorer:
             if idx:
                 hi[:, idx], lo[:, idx] = _cusum_by_group(u.iloc[:, idx], keys[family], self.cusum_k)
         strength = self._relevant(np.maximum(hi, lo) / self.cusum_h_, (stats - base).mask(in_base), keys)
-        strength = self._scale_explained(strength, trip_features.set_index("trip_id").reindex(df["trip_id"]),
-                                         keys["tyre"])
+        witness = [c for c in SCALE_WITNESS_INPUTS if c in by_trip.columns]
+        strength = self._scale_explained(strength, by_trip.loc[df["trip_id"], witness], keys["tyre"])
         alarm = strength > 1.0
         vehicle_key = keys["sensor"]
         rolling = (df.groupby(vehicle_key)["score"]
@@ -440,12 +445,13 @@ class FleetScorer:
         baseline (since its last tyre event), Δ ln slope ≈ 2·Δ ln gain says tyres and ≈ 0 says the
         sensor; closer to the former (same sign, |Δ ln slope| > |Δ ln gain|) caps them.
         """
-        names = [c for c in ("yaw_gain", "scale_ay_per_vr") if c in features.columns]
+        names = [c for c in SCALE_WITNESS_INPUTS if c in features.columns]
         scale_stats = [j for j, c in enumerate(self.statistics_) if c in WHEEL_SCALE_STATISTICS]
         if len(names) < 2 or not scale_stats:
             return strength
         with np.errstate(invalid="ignore", divide="ignore"):
-            logs = np.log(features[names].astype(float).where(features[names] > 0)).reset_index(drop=True)
+            values = features[names].astype(float)
+            logs = np.log(values.where(values > 0)).reset_index(drop=True)
         base, in_base = self._lagged_baseline(logs, key)
         change = (logs - base).mask(in_base)
         # the last min_trips trips see a step as soon as the CUSUM does (a median of ten moves only
