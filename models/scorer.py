@@ -66,7 +66,9 @@ from models.feature_set import describe_feature, evidence_key, model_features
 from models.forest import SubspaceForests
 from models.ordering import SENSOR_COMPONENTS, ranked
 from models.service import FAMILIES, WHEEL_SCALE_STATISTICS, epoch_keys, service_table, statistic_family
-from models.peers import MAD_TO_SIGMA, assign_peer_groups, lookup_statistics, normalise, peer_statistics, reference_sample
+from models.peers import (MAD_TO_SIGMA, MIN_FEATURE_PEERS, assign_peer_groups, lookup_statistics, normalise,
+                          peer_statistics, reference_sample)
+from tracktrue.errors import UserError
 from tracktrue.schema import POSITIONS
 
 log = logging.getLogger(__name__)
@@ -183,6 +185,11 @@ class FleetScorer:
         # drift calibration: statistics, baselines, pooled within-vehicle spread, threshold
         stats = self._drift_statistics(df)
         self.statistics_ = [c for c in stats.columns if stats[c].notna().any()]
+        if not self.statistics_:
+            raise UserError(
+                f"too little data to score yet: {len(df)} trip(s) of {df['vehicle_id'].nunique()} vehicle(s), and "
+                f"no feature has a peer norm (each needs {self.min_ref_trips} or more trips from at least "
+                f"{MIN_FEATURE_PEERS} vehicles of a peer group that measure it); add more logs and score again")
         base, in_base, _ = self._baselines(df, stats)
         # deviations of trips *outside* the baseline they are compared with (inside it,
         # a trip pulls its own baseline towards itself and the spread comes out too small)
@@ -491,7 +498,7 @@ class FleetScorer:
         exceed ``sole`` (in units of h; the drift alarm's sole_cusum_h_ / h, see module doc)."""
         names = self.statistics_ if names is None else names
         col = {s: j for j, s in enumerate(names)}
-        gated = np.where(np.array([tyre_moves(c) for c in names])[None, :] & ~wheels_agree[:, None],
+        gated = np.where(np.array([tyre_moves(c) for c in names], dtype=bool)[None, :] & ~wheels_agree[:, None],
                          0.0, strength)
         out = {}
         for component, modes in COMPONENT_RESIDUALS.items():

@@ -114,6 +114,20 @@ def test_vehicle_report_lists_trips_and_features_and_rejects_an_unknown_vehicle(
         models.vehicle_report(store, "NOPE")
 
 
+def test_a_store_too_small_for_any_peer_norm_is_a_clear_error_not_a_traceback(tmp_path, features, capsys):
+    """One vehicle's first trips: no feature has a peer norm yet (a first night of logs)."""
+    from tracktrue.cli import main
+
+    store = Store.open(tmp_path / "tiny")
+    first = features[features["vehicle_id"] == "V003"].sort_values("start_time").head(3)
+    store.publish_table("trip_features", first)
+    with pytest.raises(UserError, match=r"too little data to score yet: 3 trip\(s\) of 1 vehicle\(s\)"):
+        models.run_scoring(store)
+    assert main(["score", "--store", str(tmp_path / "tiny")]) == 2
+    assert "tracktrue score: too little data to score yet" in capsys.readouterr().err
+    assert not store.has_table("vehicle_status")
+
+
 def test_as_of_never_reads_a_later_trip(tmp_path, features):
     as_of = dt.date(2026, 3, 25)
     end = pd.Timestamp(as_of, tz="UTC") + pd.Timedelta(days=1)
