@@ -32,7 +32,8 @@ from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
 
-SUFFIXES = (".csv", ".txt")
+#: Log exports in a folder: CSV, and the .txt / .tsv names scan tools give tab-separated exports.
+SUFFIXES = (".csv", ".txt", ".tsv")
 #: Rows held in memory before a chunk is written and committed.
 CHUNK_ROWS = 2_000_000
 #: Threads parsing files while the main thread stages and commits (pyarrow and
@@ -92,7 +93,7 @@ class IngestSummary:
 
 
 def find_files(paths: list[Path], store: Store) -> list[Path]:
-    """Named files, plus *.csv / *.txt (any case) under named folders, outside the store."""
+    """Named files, plus *.csv / *.txt / *.tsv (any case) under named folders, outside the store."""
     store_root = store.root.resolve()
     found: set[Path] = set()
     for p in paths:

@@ -102,10 +102,14 @@ def test_a_renamed_copy_is_a_duplicate_and_adds_nothing(tmp_path):
     store = Store.open(tmp_path / "store")
     run_ingest([logs], store)
     shutil.copy(logs / "v0" / "log_0.CSV", logs / "v0" / "renamed.txt")
+    shutil.copy(logs / "v0" / "log_0.CSV", logs / "v0" / "renamed.TSV")
+    (logs / "v0" / "notes.md").write_text("not a log")
     summary = run_ingest([logs], store)
-    assert len(summary.duplicates) == 1
+    assert len(summary.duplicates) == 2
     files = store.read_table("ingested_files").set_index("path")
     assert files.loc[str(logs / "v0" / "renamed.txt"), "status"] == "duplicate"
+    assert files.loc[str(logs / "v0" / "renamed.TSV"), "status"] == "duplicate"
+    assert str(logs / "v0" / "notes.md") not in files.index
     assert len(store.read_table("trips")) == 2
 
 
