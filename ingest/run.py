@@ -58,6 +58,8 @@ class IngestSummary:
     reject_kinds: Counter = field(default_factory=Counter)
     column_errors: list[tuple[str, str]] = field(default_factory=list)
     warnings: list[tuple[str, str]] = field(default_factory=list)
+    #: Files read whose every row was rejected (e.g. timestamps without a UTC offset): the first reason
+    no_trip_files: list[tuple[str, str]] = field(default_factory=list)
     registry: RegistryResult | None = None
 
     @property
@@ -80,7 +82,8 @@ class IngestSummary:
             lines.append(f"  vehicle registry {r.path}: {r.loaded} vehicle(s) loaded, {len(r.rejects)} row(s) rejected")
             lines += [f"    line {row}: {reason}" for row, reason in r.rejects[:_SHOWN]]
             lines += [f"    warning: {w}" for w in r.warnings[:_SHOWN]]
-        for title, items in (("rejected files", self.rejected_files), ("column errors", self.column_errors),
+        for title, items in (("rejected files", self.rejected_files),
+                             ("files with no trip stored", self.no_trip_files), ("column errors", self.column_errors),
                              ("duplicates", self.duplicates), ("warnings", self.warnings)):
             if items:
                 lines.append(f"  {title} ({len(items)}):")
@@ -254,6 +257,9 @@ class _Run:
         s.reject_kinds.update(result.reject_kinds)
         s.column_errors += [(key, e) for e in result.column_errors]
         s.warnings += [(key, w) for w in result.warnings]
+        if not result.trips and result.rejects:
+            line, why = result.rejects[0]
+            s.no_trip_files.append((key, f"{len(result.rejects):,} of {result.n_rows:,} row(s) rejected, e.g. line {line}: {why}"))
         return result.n_rows
 
     def _drop_stored_trips(self, key: str, result: LogResult) -> None:

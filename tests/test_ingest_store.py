@@ -277,3 +277,16 @@ def test_progress_bars_run_when_asked(tmp_path, capsys):
     summary = run_ingest([_fleet(tmp_path / "logs", n_files=2)], Store.open(tmp_path / "store"), progress=True)
     assert summary.trips == 2
     assert "file" in capsys.readouterr().err
+
+
+def test_a_file_whose_every_row_is_rejected_is_named_in_the_summary_with_its_first_reason(tmp_path):
+    """Timestamps without a UTC offset reject every row: the summary must say so per file, not only count."""
+    logs = tmp_path / "logs"
+    logs.mkdir()
+    (logs / "naive.csv").write_bytes(b"# vehicle: Z\ntime,FL [km/h]\n2026-03-02T08:00:00,10\n2026-03-02T08:00:01,10\n")
+    summary = run_ingest([logs], Store.open(tmp_path / "store"))
+    assert summary.trips == 0 and summary.exit_code == 1
+    assert summary.no_trip_files == [(str(logs / "naive.csv"), summary.no_trip_files[0][1])]
+    text = summary.describe()
+    assert "files with no trip stored (1):" in text
+    assert "naive.csv: 2 of 2 row(s) rejected, e.g. line 3: " in text and "no UTC offset" in text
