@@ -86,7 +86,7 @@ _POSITIONS = {
     "rl": ("rl", "lr", "rear left", "left rear"),
     "rr": ("rr", "rear right", "right rear"),
 }
-_WHEEL_WORDS = r"(wheel|wheels|whl|wss|wheelspeed|whlspd)"
+_WHEEL_WORDS = r"(wheel|wheels|whl|wss|ws|wheelspeed|whlspd)"
 _ACCEL_WORDS = r"(acceleration|accel|acc|accelerometer|g sensor|gsensor)"
 _LAMP_WORDS = r"(lamp|light|warning|tell ?tale|mil|indicator)"
 
@@ -167,6 +167,14 @@ def recognise(header: str) -> Recognised:
     name, unit = split_unit(header)
     name_words = words(name)
     signal = signal_of(name_words)
+    if unit is None:
+        # a unit written as the last word without brackets ("Wheel Speed FL km/h"), read before
+        # words() splits it ("km h", "m s")
+        written = name.split()
+        if len(written) > 1 and normalise_unit(written[-1]) in UNITS:
+            head_signal = signal_of(words(" ".join(written[:-1])))
+            if head_signal is not None:
+                return Recognised(header, head_signal, written[-1])
     if unit is None and " " in name_words:
         head, last = name_words.rsplit(" ", 1)
         if last in _SUFFIX_UNITS and signal_of(head) is not None:

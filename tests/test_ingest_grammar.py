@@ -27,6 +27,12 @@ from ingest.profile import Profile
     ("right front wss (km/h)", "wheel_speed_fr", "km/h"),
     ("FL [km/h]", "wheel_speed_fl", "km/h"),
     ("wheel_speed_rr_kph", "wheel_speed_rr", "kph"),
+    ("ws_fl_kmh", "wheel_speed_fl", "kmh"),
+    # a unit as the last word, without brackets
+    ("Wheel Speed FL km/h", "wheel_speed_fl", "km/h"),
+    ("LR wheel speed m/s", "wheel_speed_rl", "m/s"),
+    ("Yaw rate deg/s", "yaw_rate", "deg/s"),
+    ("Lateral acceleration m/s²", "accel_lat", "m/s²"),
     # the other signals
     ("Yaw rate [deg/s]", "yaw_rate", "deg/s"),
     ("yawRate (rad/s)", "yaw_rate", "rad/s"),
@@ -90,6 +96,8 @@ def test_stored_values_are_converted_with_the_exact_factors():
 
 @pytest.mark.parametrize("header,word", [
     ("WSS FL", "no unit"),
+    ("WSS FL furlongs", "no unit"),
+    ("Vehicle speed m", "needs speed"),
     ("WSS FL [furlong/fortnight]", "unknown unit"),
     ("WSS FL [deg/s]", "needs speed"),
     ("Lat accel [V]", "zero point and sensitivity"),
