@@ -70,7 +70,7 @@ def parse_time(col: pa.Array, unit: str | None, fmt: str, timezone: str | None,
     if len(finite) == 0:  # nothing to tell the time base by: every row is rejected on its own
         unreadable = ~missing
         return TimeResult(np.zeros(len(col), np.int64), np.ones(len(col), bool),
-                          {"is missing": missing, "is neither an ISO 8601 time nor a number": unreadable}, "none")
+                          {"is missing": missing, _unreadable_reason(text): unreadable}, "none")
     epoch = fmt in ("epoch_s", "epoch_ms") or (fmt == "auto" and np.median(finite) > EPOCH_S_MIN)
     if epoch:
         offset_us, basis = 0, "epoch"
@@ -85,6 +85,27 @@ def parse_time(col: pa.Array, unit: str | None, fmt: str, timezone: str | None,
     reasons = {"is missing": missing, **reasons}
     bad = np.logical_or.reduce(list(reasons.values())) | ~np.isfinite(seconds)
     return TimeResult(us, bad, reasons, basis)
+
+
+#: Time texts that are neither ISO 8601 nor numbers but common in exports, and what to do instead.
+_UNREADABLE_HINTS: tuple[tuple[str, str], ...] = (
+    (r"^\s*\d{1,2}:\d{2}(:\d{2}([.,]\d+)?)?\s*$",
+     "is a time of day without a date (export ISO 8601 date-times with an offset, e.g. 2026-03-02T07:14:00Z, "
+     "or seconds since a '# start:' line)"),
+    (r"^\s*\d{1,2}[./]\d{1,2}[./]\d{2,4}",
+     "is a slash- or dot-separated date, whose day/month order is ambiguous (export ISO 8601 date-times "
+     "with an offset, e.g. 2026-03-02T07:14:00Z)"),
+)
+
+
+def _unreadable_reason(text: pa.Array) -> str:
+    """Why a time column none of whose values is ISO 8601 or a number cannot be read, with a hint
+    where most values take a form exports commonly use."""
+    sample = text.drop_null().slice(0, 1000)
+    for pattern, reason in _UNREADABLE_HINTS:
+        if len(sample) and (pc.sum(pc.match_substring_regex(sample, pattern)).as_py() or 0) * 2 > len(sample):
+            return reason
+    return "is neither an ISO 8601 time nor a number"
 
 
 def _mostly_iso(text: pa.Array) -> bool:

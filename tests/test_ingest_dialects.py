@@ -100,6 +100,19 @@ def test_naive_iso_times_are_rejected_unless_a_timezone_is_given():
     assert _frame(zoned).time.iloc[0] == pd.Timestamp("2026-03-02T07:00:00Z")
 
 
+@pytest.mark.parametrize("stamp,hint", [
+    ("08:00:00.250", "time of day without a date"),
+    ("02/03/2026 08:00:00", "day/month order is ambiguous"),
+    ("02.03.2026 08:00", "day/month order is ambiguous"),
+    ("soon", "neither an ISO 8601 time nor a number"),
+])
+def test_unreadable_times_are_rejected_with_what_to_export_instead(stamp, hint):
+    csv = f"# vehicle: Z\n# start: 2026-03-02T08:00:00Z\ntime,FL [km/h]\n{stamp},10\n{stamp},10\n".encode()
+    r = read_log(csv, "clock.csv", "V", Profile(), 300)
+    assert r.trips == [] and [line for line, _ in r.rejects] == [4, 5]
+    assert all(hint in why and repr(stamp) in why for _, why in r.rejects)
+
+
 def test_a_log_with_two_ignition_cycles_becomes_two_trips():
     r = _read("two_ignition_cycles.csv")
     assert [t.info["n_samples"] for t in r.trips] == [3, 2]
