@@ -1,7 +1,7 @@
 """Vehicle registry import (``--vehicles vehicles.csv``).
 
 Required columns: vehicle_id, platform, wheelbase_m, track_front_m,
-track_rear_m, steering_ratio, tyre_radius_m; optional:
+track_rear_m, steering_ratio (its cells may be blank: estimated per platform), tyre_radius_m; optional:
 understeer_gradient_deg_per_g, depot, vin, next_service_date (YYYY-MM-DD,
 which the inspection plan uses to combine an inspection with a service). A row with a problem is not
 loaded and is reported (file, 1-based line, problem) in ``rejects``; the
@@ -20,6 +20,10 @@ import pandas as pd
 from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
+
+#: Required columns whose cells may be left blank: the features stage estimates a platform's
+#: steering ratio from its trips (features.platform_params) and marks it estimated.
+ESTIMATED_WHEN_BLANK: frozenset[str] = frozenset({"steering_ratio"})
 from tracktrue.vin import vin_problem
 
 #: Plausible ranges for road vehicles from a small car to a long coach or
@@ -66,7 +70,7 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
             continue
         values, bad = to_float(parsed.columns[index[c]], log.delimiter != ",")
         data[c] = values
-        required = c in REGISTRY_REQUIRED
+        required = c in REGISTRY_REQUIRED and c not in ESTIMATED_WHEN_BLANK
         for i in np.flatnonzero(bad):
             problems[i].append(f"{c} is not a number")
         for i in np.flatnonzero(~bad & np.isnan(values) & required):

@@ -164,41 +164,48 @@ def test_missing_paths_and_bad_gaps_are_user_errors(tmp_path):
         run_ingest([tmp_path], store, trip_gap_s=0)
 
 
-def test_registry_rows_load_and_bad_rows_are_reported_with_line_and_problem(tmp_path):
+def _load_registry(tmp_path, text: str, n_files: int = 2):
+    """Ingest a small fleet with the registry ``text``: (vehicles by id, this registry's rejects by line, summary)."""
     reg = tmp_path / "vehicles.csv"
-    reg.write_text(
+    reg.write_text(text)
+    store = Store.open(tmp_path / "store")
+    summary = run_ingest([_fleet(tmp_path / "logs", n_files=n_files)], store, vehicles_csv=reg)
+    rejects = store.read_table("rejects")
+    mine = rejects[rejects.source_file == str(reg)].set_index("row")["reason"].to_dict()
+    return store.read_table("vehicles").set_index("vehicle_id"), mine, summary
+
+
+def test_registry_rows_load_and_bad_rows_are_reported_with_line_and_problem(tmp_path):
+    vehicles, mine, summary = _load_registry(tmp_path, (
         "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m,depot,vin\n"
         "V0,van-a,3.4,1.7,1.7,16,0.33,North,1M8GDM9AXKP042788\n"
         "V1,van-a,34,1.7,1.7,16,0.33,North,\n"
         "V2,van-a,3.4,1.7,1.7,abc,0.33,North,\n"
-        "V0,van-b,3.4,1.7,1.7,16,0.33,North,\n"
-    )
-    store = Store.open(tmp_path / "store")
-    summary = run_ingest([_fleet(tmp_path / "logs", n_files=3)], store, vehicles_csv=reg)
-    vehicles = store.read_table("vehicles").set_index("vehicle_id")
+        "V0,van-b,3.4,1.7,1.7,16,0.33,North,\n"), n_files=3)
     assert vehicles.loc["V0", "platform"] == "van-a" and vehicles.loc["V0", "spec_source"] == "registry"
     assert pd.isna(vehicles.loc["V1", "platform"]) and pd.isna(vehicles.loc["V1", "spec_source"])  # seen in logs only
-    rejects = store.read_table("rejects")
-    mine = dict(zip(rejects[rejects.source_file == str(reg)].row, rejects[rejects.source_file == str(reg)].reason))
     assert "wheelbase_m = 34" in mine[3] and "steering_ratio is not a number" in mine[4] and "already given" in mine[5]
     assert summary.exit_code == 1
 
 
+def test_a_blank_steering_ratio_loads_as_missing_for_estimation_and_other_blanks_are_reported(tmp_path):
+    """DESIGN.md: a missing spec is estimated per platform from the data (features.platform_params)."""
+    vehicles, mine, _ = _load_registry(tmp_path, (
+        "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m\n"
+        "V0,van-a,3.4,1.7,1.7,,0.33\n"
+        "V1,van-a,,1.7,1.7,16,0.33\n"))
+    assert vehicles.loc["V0", "spec_source"] == "registry" and pd.isna(vehicles.loc["V0", "steering_ratio"])
+    assert mine == {3: "wheelbase_m is empty"}
+
+
 def test_registry_next_service_date_is_published_as_a_date_and_a_bad_one_is_reported(tmp_path):
-    reg = tmp_path / "vehicles.csv"
-    reg.write_text(
+    vehicles, mine, _ = _load_registry(tmp_path, (
         "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m,next_service_date\n"
         "V0,van-a,3.4,1.7,1.7,16,0.33,2026-04-09\n"
         "V1,van-a,3.4,1.7,1.7,16,0.33,\n"
-        "V2,van-a,3.4,1.7,1.7,16,0.33,09/04/2026\n"
-    )
-    store = Store.open(tmp_path / "store")
-    run_ingest([_fleet(tmp_path / "logs", n_files=3)], store, vehicles_csv=reg)
-    vehicles = store.read_table("vehicles").set_index("vehicle_id")
+        "V2,van-a,3.4,1.7,1.7,16,0.33,09/04/2026\n"), n_files=3)
     assert pd.Timestamp(vehicles.loc["V0", "next_service_date"]).date() == pd.Timestamp("2026-04-09").date()
     assert pd.isna(vehicles.loc["V1", "next_service_date"])
-    rejects = store.read_table("rejects")
-    mine = dict(zip(rejects[rejects.source_file == str(reg)].row, rejects[rejects.source_file == str(reg)].reason))
     assert "next_service_date '09/04/2026' is not a date" in mine[4]
 
 
