@@ -1,7 +1,7 @@
 """Vehicle registry import (``--vehicles vehicles.csv``).
 
 Required columns: vehicle_id, platform, wheelbase_m, track_front_m,
-track_rear_m, steering_ratio (its cells may be blank: estimated per platform), tyre_radius_m; optional:
+track_rear_m, steering_ratio (blank or absent: estimated per platform), tyre_radius_m; optional:
 understeer_gradient_deg_per_g, depot, vin, next_service_date (YYYY-MM-DD,
 which the inspection plan uses to combine an inspection with a service). A row with a problem is not
 loaded and is reported (file, 1-based line, problem) in ``rejects``; the
@@ -21,7 +21,7 @@ from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
 
-#: Required columns whose cells may be left blank: the features stage estimates a platform's
+#: Registry columns that may be left blank or out: the features stage estimates a platform's
 #: steering ratio from its trips (features.platform_params) and marks it estimated.
 ESTIMATED_WHEN_BLANK: frozenset[str] = frozenset({"steering_ratio"})
 from tracktrue.vin import vin_problem
@@ -50,7 +50,8 @@ class RegistryResult:
 def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
     """Validated registry rows (one per vehicle_id) and what was rejected."""
     result = RegistryResult(str(path))
-    log, index = read_keyed_csv(path, "vehicle registry", REGISTRY_REQUIRED, REGISTRY_OPTIONAL)
+    needed = tuple(c for c in REGISTRY_REQUIRED if c not in ESTIMATED_WHEN_BLANK)
+    log, index = read_keyed_csv(path, "vehicle registry", needed, (*sorted(ESTIMATED_WHEN_BLANK), *REGISTRY_OPTIONAL))
     numeric = [index[c] for c in PLAUSIBLE if c in index]
     text = [index[c] for c in _TEXT_COLUMNS if c in index]
     parsed = parse_rows(log, numeric, text)

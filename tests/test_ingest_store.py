@@ -166,6 +166,7 @@ def test_missing_paths_and_bad_gaps_are_user_errors(tmp_path):
 
 def _load_registry(tmp_path, text: str, n_files: int = 2):
     """Ingest a small fleet with the registry ``text``: (vehicles by id, this registry's rejects by line, summary)."""
+    tmp_path.mkdir(parents=True, exist_ok=True)
     reg = tmp_path / "vehicles.csv"
     reg.write_text(text)
     store = Store.open(tmp_path / "store")
@@ -188,7 +189,7 @@ def test_registry_rows_load_and_bad_rows_are_reported_with_line_and_problem(tmp_
     assert summary.exit_code == 1
 
 
-def test_a_blank_steering_ratio_loads_as_missing_for_estimation_and_other_blanks_are_reported(tmp_path):
+def test_a_blank_or_absent_steering_ratio_loads_as_missing_for_estimation_and_other_blanks_are_reported(tmp_path):
     """DESIGN.md: a missing spec is estimated per platform from the data (features.platform_params)."""
     vehicles, mine, _ = _load_registry(tmp_path, (
         "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m\n"
@@ -196,6 +197,9 @@ def test_a_blank_steering_ratio_loads_as_missing_for_estimation_and_other_blanks
         "V1,van-a,,1.7,1.7,16,0.33\n"))
     assert vehicles.loc["V0", "spec_source"] == "registry" and pd.isna(vehicles.loc["V0", "steering_ratio"])
     assert mine == {3: "wheelbase_m is empty"}
+    without, mine, _ = _load_registry(tmp_path / "no column", (
+        "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,tyre_radius_m\nV0,van-a,3.4,1.7,1.7,0.33\n"))
+    assert pd.isna(without.loc["V0", "steering_ratio"]) and mine == {}
 
 
 def test_registry_next_service_date_is_published_as_a_date_and_a_bad_one_is_reported(tmp_path):
