@@ -20,11 +20,11 @@ import pandas as pd
 from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
+from tracktrue.vin import vin_problem
 
 #: Registry columns that may be left blank or out: the features stage estimates a platform's
 #: steering ratio from its trips (features.platform_params) and marks it estimated.
 ESTIMATED_WHEN_BLANK: frozenset[str] = frozenset({"steering_ratio"})
-from tracktrue.vin import vin_problem
 
 #: Plausible ranges for road vehicles from a small car to a long coach or
 #: tractor unit (common practice; outside them a value is a typo or a wrong unit).
@@ -79,7 +79,8 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
         with np.errstate(invalid="ignore"):
             out = np.flatnonzero(~np.isnan(values) & ~((values >= lo) & (values <= hi)))
         for i in out:
-            problems[i].append(f"{c} = {values[i]:g} is outside the plausible range {lo:g}..{hi:g}")
+            unit = " (millimetres? the column is in metres)" if c.endswith("_m") and lo <= values[i] / 1000 <= hi else ""
+            problems[i].append(f"{c} = {values[i]:g} is outside the plausible range {lo:g}..{hi:g}{unit}")
     service = pd.Series(data["next_service_date"], dtype=object)
     dates = pd.to_datetime(service, format="%Y-%m-%d", errors="coerce")
     for i in np.flatnonzero((service.notna() & dates.isna()).to_numpy()):
