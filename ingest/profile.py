@@ -41,6 +41,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ingest import grammar
+from ingest.reader import FileUnusable
+from ingest.timebase import zone
 from tracktrue.errors import UserError
 
 TIME_FORMATS = ("auto", "iso", "epoch_s", "epoch_ms", "relative_s", "relative_ms")
@@ -104,6 +106,11 @@ def load_profile(path: str | Path | None) -> Profile:
     tz = time.get("timezone")
     if tz is not None and not isinstance(tz, str):
         raise UserError(f"profile {path}: [time] timezone must be text such as \"+01:00\" or \"Europe/Vienna\"")
+    if tz is not None:
+        try:
+            zone(tz)
+        except FileUnusable as exc:  # the same check a file's '# timezone:' line gets, but once, for every file
+            raise UserError(f"profile {path}: [time] timezone: {exc}") from None
     columns_doc = doc.get("columns", {})
     _expect_table(path, "columns", columns_doc)
     columns = {}

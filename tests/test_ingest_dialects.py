@@ -168,6 +168,7 @@ def test_profile_maps_voltage_accelerometer_inverts_and_scales():
     ('[columns."x"]\nsignal = "accel_long"\nunit = "V"\nzero_v = 2.5\n', "zero_v and v_per_g"),
     ('[columns."x"]\nsignal = "yaw_rate"\nunit = "km/h"\n', "needs angular rate"),
     ('[time]\nformat = "sundial"\n', "format"),
+    ('[time]\ntimezone = "Mars/Olympus"\n', "unknown time zone 'Mars/Olympus'"),
     ('[columns."x"]\nsignal = "yaw_rate"\ninvert = "yes"\n', "true or false"),
     ("this is = not toml [", "not valid TOML"),
 ])
