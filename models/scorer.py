@@ -185,6 +185,11 @@ class FleetScorer:
         # drift calibration: statistics, baselines, pooled within-vehicle spread, threshold
         stats = self._drift_statistics(df)
         self.statistics_ = [c for c in stats.columns if stats[c].notna().any()]
+        if not self.statistics_ and not df[self.features_].notna().to_numpy().any():
+            raise UserError(
+                f"nothing to score: none of the {len(df)} trip(s) of {df['vehicle_id'].nunique()} vehicle(s) "
+                "carries a signal any feature can use (wheel speeds, yaw rate, steering angle, accelerometers; "
+                "a telematics unit logging vehicle speed and lamps only measures no sensor)")
         if not self.statistics_:
             raise UserError(
                 f"too little data to score yet: {len(df)} trip(s) of {df['vehicle_id'].nunique()} vehicle(s), and "

@@ -10,6 +10,7 @@ import pytest
 
 import models
 from models.evaluation import read_truth
+from models.feature_set import model_features
 from test_models_fixtures import DEFAULT_FAULTS, make_trip_features, truth_frame
 from tracktrue.errors import UserError
 from tracktrue.schema import (COMPONENTS, PEER_BANDS_COLUMNS, RANKING_COLUMNS, STATUSES, TRIP_SCORES_COLUMNS,
@@ -126,6 +127,11 @@ def test_a_store_too_small_for_any_peer_norm_is_a_clear_error_not_a_traceback(tm
     assert main(["score", "--store", str(tmp_path / "tiny")]) == 2
     assert "tracktrue score: too little data to score yet" in capsys.readouterr().err
     assert not store.has_table("vehicle_status")
+    blind = features.copy()
+    blind[model_features(blind)] = float("nan")  # a fleet of telematics units
+    store.publish_table("trip_features", blind)
+    with pytest.raises(UserError, match="nothing to score: none of the .* carries a signal any feature can use"):
+        models.run_scoring(store)
 
 
 def test_as_of_never_reads_a_later_trip(tmp_path, features):
