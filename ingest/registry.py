@@ -79,7 +79,8 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
         with np.errstate(invalid="ignore"):
             out = np.flatnonzero(~np.isnan(values) & ~((values >= lo) & (values <= hi)))
         for i in out:
-            unit = " (millimetres? the column is in metres)" if c.endswith("_m") and lo <= values[i] / 1000 <= hi else ""
+            in_mm = c.endswith("_m") and lo <= values[i] / 1000 <= hi
+            unit = " (millimetres? the column is in metres)" if in_mm else ""
             problems[i].append(f"{c} = {values[i]:g} is outside the plausible range {lo:g}..{hi:g}{unit}")
     service = pd.Series(data["next_service_date"], dtype=object)
     dates = pd.to_datetime(service, format="%Y-%m-%d", errors="coerce")

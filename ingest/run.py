@@ -259,7 +259,8 @@ class _Run:
         s.warnings += [(key, w) for w in result.warnings]
         if not result.trips and result.rejects:
             line, why = result.rejects[0]
-            s.no_trip_files.append((key, f"{len(result.rejects):,} of {result.n_rows:,} row(s) rejected, e.g. line {line}: {why}"))
+            s.no_trip_files.append(
+                (key, f"{len(result.rejects):,} of {result.n_rows:,} row(s) rejected, e.g. line {line}: {why}"))
         return result.n_rows
 
     def _drop_stored_trips(self, key: str, result: LogResult) -> None:
