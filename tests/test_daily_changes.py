@@ -113,6 +113,7 @@ def test_unusable_change_requests_say_why(store, capsys, args, code, message):
 def test_since_without_changes_and_a_store_without_history_are_told(tmp_path, capsys):
     assert main(["rank", "--since", "2026-03-09", "--store", str(tmp_path / "s")]) == 2
     assert "--since goes with --changes" in capsys.readouterr().err
+    Store.open(tmp_path / "s")  # a store, but no scoring run yet
     assert main(["rank", "--changes", "--store", str(tmp_path / "s")]) == 4
     assert "no status history yet" in capsys.readouterr().err
 

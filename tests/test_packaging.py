@@ -33,3 +33,19 @@ def test_every_command_has_help(command):
     out = subprocess.run(args, capture_output=True, text=True, timeout=60)
     assert out.returncode == 0, out.stderr
     assert "usage: tracktrue" in out.stdout
+
+
+def test_python_dash_m_tracktrue_is_the_same_command_line():
+    out = subprocess.run([sys.executable, "-m", "tracktrue", "--version"], capture_output=True, text=True, timeout=60)
+    assert out.returncode == 0 and out.stdout.startswith("tracktrue "), out.stderr
+
+
+@pytest.mark.parametrize("command", [["features"], ["score"], ["rank"], ["vehicle", "V1"], ["evaluate"],
+                                     ["snooze", "V1", "--clear"], ["dashboard"]])
+def test_a_reading_command_on_a_path_without_a_store_says_so_and_creates_nothing(tmp_path, command, capsys):
+    from tracktrue.cli import EXIT_MISSING, main
+
+    where = tmp_path / "typo"
+    assert main([*command, "--store", str(where)]) == EXIT_MISSING
+    assert f"no store at {where}" in capsys.readouterr().err
+    assert not where.exists()

@@ -20,9 +20,19 @@ from pathlib import Path
 from tracktrue import __version__
 from tracktrue.errors import UserError
 from tracktrue.schema import SERVICE_EVENT_KINDS
-from tracktrue.store import LockHeld, Store, TableMissing
+from tracktrue.store import LockHeld, Store, TableMissing, resolve_store_root
 
 EXIT_OK, EXIT_REJECTS, EXIT_USAGE, EXIT_LOCKED, EXIT_MISSING = 0, 1, 2, 3, 4
+
+
+def _existing_store(args) -> Store:
+    """The store a reading stage works on; a path without one is a usage error, never a new empty store
+    (a mistyped --store would otherwise leave a folder behind and report missing tables)."""
+    root = resolve_store_root(args.store)
+    if not root.is_dir():
+        raise UserError(f"no store at {root}: ingest logs into it first (`tracktrue ingest LOGS --store {root}`), "
+                        "or run `tracktrue demo`", exit_code=EXIT_MISSING)
+    return Store.open(root, create=False)
 
 
 def _date(text: str) -> dt.date:
@@ -250,7 +260,7 @@ def cmd_update(args) -> int:
 def cmd_features(args) -> int:
     from features import run_features
 
-    summary = run_features(Store.open(args.store), rebuild=args.rebuild, progress=_progress(args),
+    summary = run_features(_existing_store(args), rebuild=args.rebuild, progress=_progress(args),
                            engine=args.engine, scheduler=args.scheduler)
     print(summary.describe())
     return EXIT_OK
@@ -259,7 +269,7 @@ def cmd_features(args) -> int:
 def cmd_score(args) -> int:
     from models import run_scoring
 
-    summary = run_scoring(Store.open(args.store), as_of=args.as_of, progress=_progress(args))
+    summary = run_scoring(_existing_store(args), as_of=args.as_of, progress=_progress(args))
     print(summary.describe())
     return EXIT_OK
 
@@ -267,11 +277,13 @@ def cmd_score(args) -> int:
 def cmd_rank(args) -> int:
     from models import format_ranking, ranking_table
 
-    store = Store.open(args.store)
+    if args.changes and (args.status or args.top):
+        raise UserError("--changes lists every change; it takes no --status or --top")
+    if not args.changes and args.since is not None:
+        raise UserError("--since goes with --changes")
+    store = _existing_store(args)
     if args.changes:
         return _print_changes(store, args)
-    if args.since is not None:
-        raise UserError("--since goes with --changes")
     print(format_ranking(ranking_table(store, statuses=args.status, top=args.top), args.format))
     return EXIT_OK
 
@@ -280,8 +292,6 @@ def _print_changes(store: Store, args) -> int:
     from models.changes import run_changes
     from models.ranking import format_changes
 
-    if args.status or args.top:
-        raise UserError("--changes lists every change; it takes no --status or --top")
     history = store.read_table("status_history") if store.has_table("status_history") else None
     print(format_changes(run_changes(history, since=args.since), args.format))
     return EXIT_OK
@@ -290,15 +300,15 @@ def _print_changes(store: Store, args) -> int:
 def cmd_snooze(args) -> int:
     from dashboard.snoozes import clear_snooze, snooze_vehicle
 
-    store = Store.open(args.store)
+    if args.clear and (args.until or args.reason):
+        raise UserError("--clear takes no --until or --reason")
+    if not args.clear and (args.until is None or args.reason is None):
+        raise UserError("a snooze needs --until DATE and --reason TEXT (or --clear)")
+    store = _existing_store(args)
     if args.clear:
-        if args.until or args.reason:
-            raise UserError("--clear takes no --until or --reason")
         found = clear_snooze(store, args.vehicle_id)
         print(f"{args.vehicle_id}: snooze removed" if found else f"{args.vehicle_id} had no snooze")
         return EXIT_OK
-    if args.until is None or args.reason is None:
-        raise UserError("a snooze needs --until DATE and --reason TEXT (or --clear)")
     row = snooze_vehicle(store, args.vehicle_id, args.until, args.reason)
     print(f"{args.vehicle_id}: {row['snoozed_status']} snoozed until {row['until']} ({row['reason']}); "
           "takes effect at the next `tracktrue update`")
@@ -308,7 +318,7 @@ def cmd_snooze(args) -> int:
 def cmd_vehicle(args) -> int:
     from models import vehicle_report
 
-    print(vehicle_report(Store.open(args.store), args.vehicle_id, n_trips=args.trips))
+    print(vehicle_report(_existing_store(args), args.vehicle_id, n_trips=args.trips))
     return EXIT_OK
 
 
@@ -316,7 +326,7 @@ def cmd_evaluate(args) -> int:
     from dashboard.outcomes import read_outcomes
     from models import evaluate
 
-    store = Store.open(args.store)
+    store = _existing_store(args)
     report = evaluate(store, truth_csv=args.truth, as_of=args.as_of, outcomes=read_outcomes(store))
     print(report.describe())
     return EXIT_OK
@@ -332,7 +342,7 @@ def cmd_demo(args) -> int:
 def cmd_dashboard(args) -> int:
     from dashboard import launch
 
-    return launch(Store.open(args.store), port=args.port, host=args.host)
+    return launch(_existing_store(args), port=args.port, host=args.host)
 
 
 def main(argv: list[str] | None = None) -> int:
