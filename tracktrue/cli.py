@@ -14,13 +14,14 @@ from __future__ import annotations
 import argparse
 import datetime as dt
 import logging
+import os
 import sys
 from pathlib import Path
 
 from tracktrue import __version__
 from tracktrue.errors import UserError
 from tracktrue.schema import SERVICE_EVENT_KINDS
-from tracktrue.store import LockHeld, Store, TableMissing, resolve_store_root
+from tracktrue.store import STORE_ENV, LockHeld, Store, TableMissing, resolve_store_root
 
 EXIT_OK, EXIT_REJECTS, EXIT_USAGE, EXIT_LOCKED, EXIT_MISSING = 0, 1, 2, 3, 4
 
@@ -30,8 +31,9 @@ def _existing_store(args) -> Store:
     (a mistyped --store would otherwise leave a folder behind and report missing tables)."""
     root = resolve_store_root(args.store)
     if not root.is_dir():
-        raise UserError(f"no store at {root}: ingest logs into it first (`tracktrue ingest LOGS --store {root}`), "
-                        "or run `tracktrue demo`", exit_code=EXIT_MISSING)
+        default = "" if args.store or os.environ.get(STORE_ENV) else f" (the default; give --store DIR or set ${STORE_ENV})"
+        raise UserError(f"no store at {root}{default}: ingest logs into it first "
+                        f"(`tracktrue ingest LOGS --store {root}`), or run `tracktrue demo`", exit_code=EXIT_MISSING)
     return Store.open(root, create=False)
 
 
