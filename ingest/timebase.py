@@ -103,7 +103,7 @@ def _unreadable_reason(text: pa.Array) -> str:
     where most values take a form exports commonly use."""
     sample = text.drop_null().slice(0, 1000)
     for pattern, reason in _UNREADABLE_HINTS:
-        if len(sample) and (pc.sum(pc.match_substring_regex(sample, pattern)).as_py() or 0) * 2 > len(sample):
+        if len(sample) and _count_matching(sample, pattern) * 2 > len(sample):
             return reason
     return "is neither an ISO 8601 time nor a number"
 
@@ -113,9 +113,14 @@ def _mostly_iso(text: pa.Array) -> bool:
     if len(valid) == 0:
         return False
     sample = valid.slice(0, 1000)
-    iso = pc.sum(pc.match_substring_regex(sample, r"^\s*\d{4}-\d{2}-\d{2}[T ]")).as_py() or 0
-    number = pc.sum(pc.match_substring_regex(sample, r"^\s*[+-]?(\d+[.,]?\d*|[.,]\d+)([eE][+-]?\d+)?\s*$")).as_py() or 0
+    iso = _count_matching(sample, r"^\s*\d{4}-\d{2}-\d{2}[T ]")
+    number = _count_matching(sample, r"^\s*[+-]?(\d+[.,]?\d*|[.,]\d+)([eE][+-]?\d+)?\s*$")
     return iso > 0 and iso >= number
+
+
+def _count_matching(sample: pa.Array, pattern: str) -> int:
+    """How many texts of ``sample`` match the regular expression ``pattern``."""
+    return pc.sum(pc.match_substring_regex(sample, pattern)).as_py() or 0
 
 
 def _iso(text: pa.Array, missing: np.ndarray, timezone: str | None) -> TimeResult:

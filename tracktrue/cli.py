@@ -27,11 +27,12 @@ EXIT_OK, EXIT_REJECTS, EXIT_USAGE, EXIT_LOCKED, EXIT_MISSING = 0, 1, 2, 3, 4
 
 
 def _existing_store(args) -> Store:
-    """The store a reading stage works on; a path without one is a usage error, never a new empty store
-    (a mistyped --store would otherwise leave a folder behind and report missing tables)."""
+    """The store a reading command works on. A path without one is a missing prerequisite (exit 4),
+    never a new empty store: a mistyped --store would otherwise leave a folder behind."""
     root = resolve_store_root(args.store)
     if not root.is_dir():
-        default = "" if args.store or os.environ.get(STORE_ENV) else f" (the default; give --store DIR or set ${STORE_ENV})"
+        chosen = args.store or os.environ.get(STORE_ENV)
+        default = "" if chosen else f" (the default; give --store DIR or set ${STORE_ENV})"
         raise UserError(f"no store at {root}{default}: ingest logs into it first "
                         f"(`tracktrue ingest LOGS --store {root}`), or run `tracktrue demo`", exit_code=EXIT_MISSING)
     return Store.open(root, create=False)
