@@ -115,6 +115,11 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     result.n_rows = len(log.data_lines)
     plan = plan_columns(log.header, profile)
     result.column_errors = plan.errors
+    if log.preamble_lines:
+        first = log.preamble_lines[0]
+        text = log.data[log.line_starts[first - 1]:log.line_stops[first - 1]].decode("utf-8", "replace").strip()
+        result.warnings.append(f"{len(log.preamble_lines)} line(s) before the header on line {log.header_line} "
+                               f"read as a preamble, not data (line {first}: {text[:60]!r})")
     if plan.ignored:
         result.warnings.append("columns not used: " + ", ".join(repr(h) for h in plan.ignored))
     cols = plan.columns

@@ -2,8 +2,10 @@
 
 Handles what exports really look like: comma, semicolon or tab delimiters,
 decimal comma, UTF-8 with or without BOM, Latin-1 (degree signs), UTF-16
-with BOM, CRLF, ``#`` comment/metadata lines anywhere, blank or
-delimiter-only lines, trailing blank lines. Every table row keeps the
+with BOM, gzip-compressed files, CRLF, ``#`` comment/metadata lines anywhere,
+a preamble of title or ``key: value`` lines before the header (a few export
+tools write one without ``#``), blank or delimiter-only lines, trailing blank
+lines. Every table row keeps the
 1-based line number it came from, so a reject names the line a person sees
 in an editor. Lines are classified with numpy over the raw bytes and parsed
 by pyarrow's CSV reader: no per-line Python loop.
@@ -12,8 +14,11 @@ by pyarrow's CSV reader: no per-line Python loop.
 from __future__ import annotations
 
 import csv
+import gzip
 import io
 import re
+import zlib
+from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
@@ -25,7 +30,14 @@ import pyarrow.csv as pacsv
 NULL_TOKENS = ["", "NA", "N/A", "n/a", "NaN", "nan", "null", "NULL", "None", "-", "--"]
 _NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
 _META_RE = re.compile(r"^#+\s*([A-Za-z][\w ]*?)\s*[:=]\s*(.*?)\s*$")
+_PREAMBLE_META_RE = re.compile(r"^\s*([A-Za-z][\w ]*?)\s*[:=]\s*(.*?)\s*$")
 _BINARY_SNIFF = 8192
+#: A header is looked for among this many first non-blank, non-comment lines (a preamble is short).
+PREAMBLE_MAX_LINES = 30
+#: Lines after a header candidate whose usual field count it must match.
+PREAMBLE_BODY_LINES = 20
+#: A gzip member may expand to at most this many bytes (a trip log is tens of MB; a bomb is not).
+GZIP_MAX_BYTES = 2 << 30
 
 
 class FileUnusable(Exception):
@@ -42,6 +54,7 @@ class LogText:
     header: list[str]
     metadata: dict[str, str]
     header_line: int  # 1-based
+    preamble_lines: tuple[int, ...]  # 1-based lines before the header read as a preamble, not data
     data_lines: np.ndarray  # 1-based line numbers of data lines (blank/comment lines excluded)
     line_starts: np.ndarray
     line_stops: np.ndarray  # exclusive, including the newline
@@ -68,7 +81,10 @@ class ParsedRows:
 
 
 def decode(raw: bytes) -> tuple[bytes, str]:
-    """Return UTF-8 bytes and the encoding they were read as."""
+    """Return UTF-8 bytes and the encoding they were read as (``gzip+…`` for a compressed file)."""
+    if raw.startswith(b"\x1f\x8b"):
+        text, encoding = decode(_gunzip(raw))
+        return text, f"gzip+{encoding}"
     if raw.startswith(b"\xef\xbb\xbf"):
         raw, bom = raw[3:], "utf-8-sig"
     else:
@@ -86,6 +102,25 @@ def decode(raw: bytes) -> tuple[bytes, str]:
         return raw, bom or "utf-8"
     except UnicodeDecodeError:
         return raw.decode("latin-1").encode("utf-8"), "latin-1"
+
+
+def _gunzip(raw: bytes) -> bytes:
+    """The decompressed bytes of a gzip file, bounded by GZIP_MAX_BYTES."""
+    inflater = zlib.decompressobj(16 + zlib.MAX_WBITS)  # gzip framing
+    try:
+        out = inflater.decompress(raw, GZIP_MAX_BYTES)
+    except zlib.error as exc:
+        raise FileUnusable(f"gzip-compressed but cannot be decompressed ({exc})") from None
+    if inflater.unconsumed_tail:
+        raise FileUnusable(f"gzip-compressed and larger than {GZIP_MAX_BYTES >> 30} GiB decompressed")
+    if not inflater.eof:
+        raise FileUnusable("gzip-compressed but truncated (the download or copy was cut short)")
+    if inflater.unused_data.startswith(b"\x1f\x8b"):  # concatenated members (gzip -c a b)
+        try:
+            out += gzip.decompress(inflater.unused_data)
+        except (OSError, EOFError, zlib.error) as exc:
+            raise FileUnusable(f"gzip-compressed but a later member cannot be decompressed ({exc})") from None
+    return out
 
 
 def _control_fraction(head: bytes) -> float:
@@ -114,8 +149,8 @@ def split_lines(raw: bytes) -> LogText:
     if starts[-1] == len(buf):  # file ends with a newline: no last empty line
         starts, stops = starts[:-1], stops[:-1]
     is_comment = buf[starts] == ord("#")
-    header_idx = _first_header(data, starts, stops, is_comment)
-    header_text = data[starts[header_idx]:stops[header_idx]].decode("utf-8").rstrip("\n")
+    header_idx, preamble = _find_header(data, starts, stops, is_comment)
+    header_text = _line(data, starts, stops, header_idx)
     delimiter = _sniff_delimiter(header_text)
     try:
         header = next(csv.reader([header_text], delimiter=delimiter))
@@ -127,10 +162,11 @@ def split_lines(raw: bytes) -> LogText:
                            "expected comma-, semicolon- or tab-separated columns")
     after = np.arange(len(starts)) > header_idx
     is_data = after & ~is_comment & _has_content(buf, starts, stops, after & ~is_comment, delimiter, len(header))
-    metadata = _metadata(data, starts, stops, np.flatnonzero(is_comment))
+    metadata = _metadata(data, starts, stops, np.flatnonzero(is_comment), preamble)
     return LogText(
         data=data, encoding=encoding, delimiter=delimiter, header=header, metadata=metadata,
-        header_line=int(header_idx) + 1, data_lines=np.flatnonzero(is_data) + 1,
+        header_line=int(header_idx) + 1, preamble_lines=tuple(i + 1 for i in preamble),
+        data_lines=np.flatnonzero(is_data) + 1,
         line_starts=starts, line_stops=stops,
     )
 
@@ -151,11 +187,52 @@ def _has_content(buf, starts, stops, candidates, delimiter: str, n_fields: int) 
     return out
 
 
-def _first_header(data: bytes, starts, stops, is_comment) -> int:
+def _line(data: bytes, starts, stops, i: int) -> str:
+    return data[starts[i]:stops[i]].decode("utf-8").rstrip("\n")
+
+
+def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]]:
+    """The header's line index and the preamble lines before it (indices).
+
+    The header is the first non-blank, non-comment line that looks like one:
+    two or more fields, fewer than half of them numbers, and about as many
+    fields (±1, for a trailing delimiter) as most of the next
+    PREAMBLE_BODY_LINES lines, so one broken first row does not disown its
+    header and a few ``key,value`` lines do not pass for one. Title or
+    ``key: value`` lines ahead of it are a preamble. Where no
+    line within PREAMBLE_MAX_LINES looks like a header, the first line is
+    taken, so its problem (one column, say) is the one reported.
+    """
+    candidates = []
     for i in np.flatnonzero(~is_comment):
         if data[starts[i]:stops[i]].strip():
-            return int(i)
-    raise FileUnusable("no header line (only blank or comment lines)")
+            candidates.append(int(i))
+            if len(candidates) == PREAMBLE_MAX_LINES + PREAMBLE_BODY_LINES:
+                break
+    if not candidates:
+        raise FileUnusable("no header line (only blank or comment lines)")
+    lines = [_line(data, starts, stops, i) for i in candidates]
+    for k, text in enumerate(lines[:PREAMBLE_MAX_LINES]):
+        delimiter = _sniff_delimiter(text)
+        fields = _fields(text, delimiter)
+        if len(fields) < 2 or sum(_is_number(f) for f in fields) * 2 >= len(fields):
+            continue
+        following = Counter(len(_fields(t, delimiter)) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
+        most = max(following, key=lambda n: (following[n], n)) if following else len(fields)
+        if abs(len(fields) - most) <= 1:
+            return candidates[k], candidates[:k]
+    return candidates[0], []
+
+
+def _fields(text: str, delimiter: str) -> list[str]:
+    try:
+        return next(csv.reader([text], delimiter=delimiter), [])
+    except csv.Error:
+        return []
+
+
+def _is_number(field: str) -> bool:
+    return re.match(_NUMBER_RE, field.strip().replace(",", ".")) is not None
 
 
 def _sniff_delimiter(header: str) -> str:
@@ -164,13 +241,15 @@ def _sniff_delimiter(header: str) -> str:
     return best if counts[best] else ","
 
 
-def _metadata(data: bytes, starts, stops, comment_idx) -> dict[str, str]:
-    """``# key: value`` lines (keys lower-cased); the first occurrence of a key wins."""
+def _metadata(data: bytes, starts, stops, comment_idx, preamble: list[int]) -> dict[str, str]:
+    """``# key: value`` lines, then a preamble's ``key: value`` lines (keys lower-cased); the first
+    occurrence of a key wins."""
     out: dict[str, str] = {}
-    for i in comment_idx[:200]:  # metadata sits in a file's head; bound the scan
-        m = _META_RE.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\n"))
-        if m:
-            out.setdefault(m.group(1).strip().lower(), m.group(2))
+    for pattern, lines in ((_META_RE, comment_idx[:200]), (_PREAMBLE_META_RE, preamble)):  # metadata sits in a
+        for i in lines:                                                                    # file's head: bounded
+            m = pattern.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\n"))
+            if m:
+                out.setdefault(m.group(1).strip().lower(), m.group(2))
     return out
 
 

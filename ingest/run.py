@@ -32,7 +32,8 @@ from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
 
-#: Log exports in a folder: CSV, and the .txt / .tsv names scan tools give tab-separated exports.
+#: Log exports in a folder: CSV, and the .txt / .tsv names scan tools give tab-separated exports;
+#: each also gzip-compressed (``.csv.gz``), as telematics portals often deliver them.
 SUFFIXES = (".csv", ".txt", ".tsv")
 #: Rows held in memory before a chunk is written and committed.
 CHUNK_ROWS = 2_000_000
@@ -96,7 +97,7 @@ class IngestSummary:
 
 
 def find_files(paths: list[Path], store: Store) -> list[Path]:
-    """Named files, plus *.csv / *.txt / *.tsv (any case) under named folders, outside the store."""
+    """Named files, plus *.csv / *.txt / *.tsv (any case, gzipped or not) under named folders, outside the store."""
     store_root = store.root.resolve()
     found: set[Path] = set()
     for p in paths:
@@ -104,11 +105,16 @@ def find_files(paths: list[Path], store: Store) -> list[Path]:
             found.add(p.resolve())
         elif p.is_dir():
             for f in p.rglob("*"):
-                if f.suffix.lower() in SUFFIXES and f.is_file():
+                if _is_export(f.name) and f.is_file():
                     r = f.resolve()
                     if store_root not in r.parents:
                         found.add(r)
     return sorted(found)
+
+
+def _is_export(name: str) -> bool:
+    name = name.lower()
+    return name.endswith(SUFFIXES) or (name.endswith(".gz") and name[:-3].endswith(SUFFIXES))
 
 
 def run_ingest(paths, store: Store, profile=None, vehicles_csv=None, trip_gap_s: float = 300.0,

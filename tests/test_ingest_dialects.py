@@ -203,3 +203,61 @@ def test_signs_that_contradict_the_wheels_are_warned_about_never_flipped():
     assert _frame(flipped).yaw_rate.iloc[10] < 0  # stored as logged
     ay_only = read_log(_turning_log(1, -1), "s.csv", "V", Profile(), 300)
     assert [w.split()[0] for w in ay_only.warnings] == ["accel_lat"]
+
+
+def _read_bytes(raw: bytes, name: str = "log.csv"):
+    return read_log(raw, name, "fixtures", Profile(), 300.0)
+
+
+def _body(name: str = "comma_iso_full.csv") -> bytes:
+    """The fixture without its comment line: header first."""
+    return b"".join((FIXTURES / name).read_bytes().splitlines(keepends=True)[1:])
+
+
+def test_a_preamble_before_the_header_is_skipped_warned_about_and_read_as_metadata():
+    # a title line with a comma in it, key: value lines, a blank line (written for tracktrue's tests)
+    preamble = b"Trip log export, generated 2026-03-02\nVehicle: YARD-7\nUnits: metric\n\n"
+    plain = _read_bytes(_body())
+    r = _read_bytes(preamble + _body())
+    assert r.unusable is None and r.rejects == []
+    assert _frame(r).drop(columns="vehicle_id").equals(_frame(plain).drop(columns="vehicle_id"))
+    assert _frame(r).vehicle_id.unique().tolist() == ["BUS-04"]  # the ID column still comes first
+    assert r.trips[0].lines.tolist() == [line + 4 for line in plain.trips[0].lines.tolist()]
+    assert any("3 line(s) before the header on line 5" in w and "Trip log export" in w for w in r.warnings)
+    # without an ID column the preamble's 'Vehicle:' line names the vehicle, as a '# vehicle:' line would
+    body = _body().replace(b"Vehicle ID,", b"Fleet tag,")
+    assert _frame(_read_bytes(preamble + body)).vehicle_id.unique().tolist() == ["YARD-7"]
+
+
+def test_a_header_is_kept_when_its_first_data_row_is_broken():
+    lines = _body().splitlines(keepends=True)
+    broken = lines[0] + b"BUS-04,2026-03-02T07:13:59.900Z,36.00\n" + b"".join(lines[1:])
+    r = _read_bytes(broken)
+    assert r.unusable is None and not any("preamble" in w for w in r.warnings)
+    assert [line for line, _ in r.rejects] == [2] and len(_frame(r)) == 5
+
+
+def test_a_file_of_single_column_lines_still_says_so():
+    r = _read_bytes(b"just a note\nanother note\n")
+    assert "single column" in r.unusable and "line 1" in r.unusable
+
+
+def test_a_gzipped_log_reads_as_the_plain_one_and_a_cut_one_says_truncated():
+    import gzip
+
+    plain = _read_bytes(_body())
+    packed = gzip.compress(_body())
+    r = _read_bytes(packed, "log.csv.gz")
+    assert r.unusable is None and _frame(r).equals(_frame(plain))
+    assert "truncated" in _read_bytes(packed[: len(packed) // 2], "log.csv.gz").unusable
+    assert "cannot be decompressed" in _read_bytes(packed[:10] + b"\x00" * 40, "log.csv.gz").unusable
+
+
+def test_folders_are_searched_for_gzipped_exports_too(tmp_path):
+    from ingest.run import find_files
+    from tracktrue.store import Store
+
+    for name in ("a.csv.gz", "b.TSV.GZ", "c.csv", "notes.gz", "d.parquet"):
+        (tmp_path / name).write_bytes(b"x")
+    found = [p.name for p in find_files([tmp_path], Store.open(tmp_path / "store"))]
+    assert found == ["a.csv.gz", "b.TSV.GZ", "c.csv"]
