@@ -63,6 +63,7 @@ UNITS: dict[str, tuple[str, float | None]] = {
     "degrees": ("angle", units.DEG_RAD),
     "rad": ("angle", 1.0),
     "g": ("acceleration", units.G0_MPS2),
+    "mg": ("acceleration", units.G0_MPS2 / 1000.0),  # milli-g: MEMS accelerometers often report it
     "m/s^2": ("acceleration", 1.0),
     "m/s2": ("acceleration", 1.0),
     "mps2": ("acceleration", 1.0),
@@ -101,8 +102,8 @@ _PATTERNS: tuple[tuple[str, str], ...] = (
     ("dtc", r"(active |stored |pending )?(dtc|dtcs|(diagnostic )?trouble codes?|fault codes?)"),
     ("brake", r"(.* )?brake( (switch|sw|pedal|light|lamp|status|state|on))*"),
     ("odometer", r"(.* )?(odometer|odo|mileage)( .*)?|total distance"),
-    ("yaw_rate", r"(.* )?(yaw|yawrate)( (rate|rt|velocity|speed))?( (sensor|signal))?"),
-    ("steering_angle", r"(.* )?(steering|steer|str|swa)( wheel)?( (angle|ang|position|pos))?( sensor)?"),
+    ("yaw_rate", r"(.* )?(yaw|yawrate|yrs)( (rate|rt|velocity|speed))?( (sensor|signal))?"),
+    ("steering_angle", r"(.* )?(steering|steer|str|swa|sas)( wheel)?( (angle|ang|position|pos))?( sensor)?"),
     ("accel_long", rf"((.* )?{_ACCEL_WORDS} (longitudinal|long|lon|x)|(longitudinal|long|lon|x) ({_ACCEL_WORDS}|g)"
                    rf"|g (longitudinal|long|lon|x)|ax)( .*)?"),
     ("accel_lat", rf"((.* )?{_ACCEL_WORDS} (lateral|lat|y)|(lateral|lat|y) ({_ACCEL_WORDS}|g)"
@@ -136,10 +137,16 @@ def words(name: str) -> str:
 
 
 def normalise_unit(unit: str) -> str:
-    """Canonical spelling of a unit as written (``m/s²`` -> ``m/s^2``, ``deg/sec`` -> ``deg/s``)."""
-    u = unit.strip().lower().replace(" ", "").replace("²", "^2").replace("º", "°")
-    u = re.sub(r"/sec$", "/s", u)
-    return {"km/std": "km/h", "sec": "s", "volt": "v", "volts": "v"}.get(u, u)
+    """Canonical spelling of a unit as written (``m/s²``, ``m/s/s``, ``m s-2`` -> ``m/s^2``; ``deg/sec`` ->
+    ``deg/s``; ``mi/hr`` -> ``mi/h``)."""
+    u = unit.strip().lower()
+    # SI's negative exponents, as instrument software writes them: "m s-2", "m·s⁻¹", "deg s^-1"
+    u = re.sub(r"^(.+?)[\s·.*]+(s|h)\^?(?:-|⁻)([12¹²])$", lambda m: f"{m[1]}/{m[2]}" + ("^2" if m[3] in "2²" else ""), u)
+    u = u.replace(" ", "").replace("²", "^2").replace("º", "°")
+    u = re.sub(r"/sec(?=$|\^|2|/)", "/s", u)
+    u = re.sub(r"/hr$", "/h", u)
+    u = re.sub(r"^(.+)/s/s$", r"\1/s^2", u)  # m/s/s, ft/sec/sec
+    return {"km/std": "km/h", "sec": "s", "volt": "v", "volts": "v", "degree": "deg", "miles/h": "mi/h"}.get(u, u)
 
 
 def signal_of(name_words: str) -> str | None:

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from ingest.columns import plan_columns
-from ingest.grammar import recognise, unit_factor
+from ingest.grammar import normalise_unit, recognise, unit_factor
 from ingest.logfile import read_log
 from ingest.profile import Profile
 
@@ -40,6 +40,9 @@ from ingest.profile import Profile
     ("Steering wheel angle [deg]", "steering_angle", "deg"),
     ("Steering angle (°)", "steering_angle", "°"),
     ("SWA [rad]", "steering_angle", "rad"),
+    # trade abbreviations: steering angle sensor, yaw rate sensor (common practice)
+    ("SAS [deg]", "steering_angle", "deg"),
+    ("YRS [°/s]", "yaw_rate", "°/s"),
     ("Longitudinal acceleration [m/s²]", "accel_long", "m/s²"),
     ("long accel [g]", "accel_long", "g"),
     ("G sensor long (m/s^2)", "accel_long", "m/s^2"),
@@ -92,6 +95,23 @@ def test_stored_values_are_converted_with_the_exact_factors():
     assert row["steering_angle"] == pytest.approx(-math.pi, rel=1e-15)
     assert row["accel_long"] == 9.80665  # CGPM 1901
     assert row["accel_lat"] == pytest.approx(0.3048, rel=1e-15)  # NIST SP 811
+
+
+@pytest.mark.parametrize("signal,written,canonical", [
+    ("accel_lat", "m/s/s", "m/s^2"), ("accel_lat", "m/sec^2", "m/s^2"), ("accel_lat", "ft/sec/sec", "ft/s^2"),
+    ("accel_lat", "m s-2", "m/s^2"), ("accel_lat", "m·s⁻²", "m/s^2"), ("yaw_rate", "deg s-1", "deg/s"),
+    ("yaw_rate", "°/sec", "°/s"), ("wheel_speed_fl", "km h-1", "km/h"), ("wheel_speed_fl", "m s^-1", "m/s"),
+    ("wheel_speed_fl", "mi/hr", "mi/h"), ("wheel_speed_fl", "miles/h", "mi/h"), ("wheel_speed_fl", "km/hr", "km/h"),
+    ("steering_angle", "degree", "deg"),
+])
+def test_unit_spellings_of_other_tools_mean_the_same_unit(signal, written, canonical):
+    assert normalise_unit(written) == canonical
+    assert unit_factor(signal, written) == unit_factor(signal, canonical) and unit_factor(signal, written)[1] is None
+
+
+def test_milli_g_is_a_thousandth_of_standard_gravity():
+    # 3rd CGPM (1901): g0 = 9.80665 m/s^2 exactly; the SI prefix milli = 10^-3 (SI Brochure, 9th ed., table 7).
+    assert unit_factor("accel_lat", "mg")[0] == pytest.approx(9.80665e-3, rel=1e-15)
 
 
 @pytest.mark.parametrize("header,word", [
