@@ -39,6 +39,7 @@ QUANTITY: dict[str, str] = {
     "dtc": "text",
     "vehicle_id": "text",
     "vin": "text",
+    "date": "text",
 }
 NUMERIC_QUANTITIES = frozenset({"speed", "angular_rate", "angle", "acceleration", "distance"})
 
@@ -97,6 +98,8 @@ _PATTERNS: tuple[tuple[str, str], ...] = (
     ("vehicle_id", r"(vehicle|veh|unit|asset|fleet)( (id|no|number|name))?|vehicleid|vehicle_id"),
     ("time", r"(utc |unix |epoch |gps |rel |relative |elapsed )?(time|timestamp|time stamp|datetime|date time|"
              r"epoch|elapsed|t)( (utc|stamp|s|elapsed|since start|offset))?|utc"),
+    # a calendar date beside a time-of-day column (ingest/logfile.py joins the two)
+    ("date", r"(log |record |recording |trip |gps |utc )?date( (utc|local))?"),
     ("lamp_abs", rf"(.* )?abs( \w+)* {_LAMP_WORDS}( \w+)*|{_LAMP_WORDS} abs"),
     ("lamp_esc", rf"(.* )?esc( \w+)* {_LAMP_WORDS}( \w+)*|{_LAMP_WORDS} esc"),
     ("dtc", r"(active |stored |pending )?(dtc|dtcs|(diagnostic )?trouble codes?|fault codes?)"),

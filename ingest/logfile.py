@@ -23,7 +23,7 @@ from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_
 from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
 from ingest.signs import sign_warnings
 from ingest.skew import MAX_LAG_MS, align
-from ingest.timebase import parse_time
+from ingest.timebase import parse_time, times_of_day
 from ingest.trips import signal_records, smallest_step, trip_bounds, trip_quality, trip_speed
 from tracktrue.ids import trip_id
 from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_UNITS, WHEEL_SPEED_COLUMNS
@@ -142,7 +142,7 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     n = len(parsed.lines)
 
     tcol = cols["time"]
-    time_text = parsed.columns[tcol.index]
+    time_text = _with_date(parsed, cols, result)
     tr = parse_time(time_text, tcol.unit, profile.time_format, profile.timezone or log.metadata.get("timezone"),
                     log.metadata.get("start"), file_name, decimal_comma)
     result.time_basis = tr.basis
@@ -203,6 +203,25 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
                                   {s: v[a:b] for s, v in logged.items()},
                                   {s: m[rows] for s, (_, m) in switches.items()}, present, parsed.lines[rows],
                                   {s: lag[rows] for s, lag in lags.items()}))
+
+
+def _with_date(parsed, cols: dict[str, Column], result: LogResult) -> pa.Array:
+    """The time column's text, preceded by the date column's where the times are times of day.
+
+    Loggers that write a ``Date`` and a ``Time`` column give the time of day in
+    the second; joined, the two read as ISO 8601 (or fail with the date's own
+    problem, a slash date say). A date column beside full date-times is not
+    needed, and said so.
+    """
+    text = parsed.columns[cols["time"].index]
+    if "date" not in cols:
+        return text
+    date = parsed.columns[cols["date"].index]
+    if not times_of_day(text.cast(pa.string())):
+        result.warnings.append(f"columns not used: {cols['date'].header!r} (the time column carries the date)")
+        return text
+    return pc.binary_join_element_wise(pc.utf8_trim_whitespace(date.cast(pa.string())),
+                                       pc.utf8_trim_whitespace(text.cast(pa.string())), " ")
 
 
 def _opt(parsed, cols: dict[str, Column], sig: str):

@@ -87,15 +87,23 @@ def parse_time(col: pa.Array, unit: str | None, fmt: str, timezone: str | None,
     return TimeResult(us, bad, reasons, basis)
 
 
+_TIME_OF_DAY_RE = r"^\s*\d{1,2}:\d{2}(:\d{2}([.,]\d+)?)?\s*(Z|z|[+-]\d{2}(:?\d{2})?)?\s*$"
+
 #: Time texts that are neither ISO 8601 nor numbers but common in exports, and what to do instead.
 _UNREADABLE_HINTS: tuple[tuple[str, str], ...] = (
-    (r"^\s*\d{1,2}:\d{2}(:\d{2}([.,]\d+)?)?\s*$",
-     "is a time of day without a date (export ISO 8601 date-times with an offset, e.g. 2026-03-02T07:14:00Z, "
-     "or seconds since a '# start:' line)"),
+    (_TIME_OF_DAY_RE,
+     "is a time of day without a date (add a Date column in ISO 8601, e.g. 2026-03-02, or export ISO 8601 "
+     "date-times with an offset, e.g. 2026-03-02T07:14:00Z, or seconds since a '# start:' line)"),
     (r"^\s*\d{1,2}[./]\d{1,2}[./]\d{2,4}",
      "is a slash- or dot-separated date, whose day/month order is ambiguous (export ISO 8601 date-times "
      "with an offset, e.g. 2026-03-02T07:14:00Z)"),
 )
+
+
+def times_of_day(text: pa.Array) -> bool:
+    """Whether most of a time column's first 1000 values are times of day (``07:14:00.250``)."""
+    sample = text.drop_null().slice(0, 1000)
+    return len(sample) > 0 and _count_matching(sample, _TIME_OF_DAY_RE) * 2 > len(sample)
 
 
 def _unreadable_reason(text: pa.Array) -> str:

@@ -261,3 +261,35 @@ def test_folders_are_searched_for_gzipped_exports_too(tmp_path):
         (tmp_path / name).write_bytes(b"x")
     found = [p.name for p in find_files([tmp_path], Store.open(tmp_path / "store"))]
     assert found == ["a.csv.gz", "b.TSV.GZ", "c.csv"]
+
+
+def _date_time_log(dates: list[str], times: list[str], head: str = "") -> bytes:
+    rows = "".join(f"{d},{t},36.0,36.0,36.0,36.0\n" for d, t in zip(dates, times))
+    return (head + "Vehicle ID,Date,Time,WSS_FL [km/h],WSS_FR [km/h],WSS_RL [km/h],WSS_RR [km/h]\n"
+            ).encode() + b"".join(f"VAN-2,{r}".encode() for r in rows.splitlines(keepends=True))
+
+
+def test_a_date_column_beside_times_of_day_makes_full_times_across_midnight():
+    # rows either side of midnight, written for tracktrue's tests
+    dates, times = ["2026-03-02", "2026-03-02", "2026-03-03"], ["23:59:59.800Z", "23:59:59.900Z", "00:00:00.000Z"]
+    r = _read_bytes(_date_time_log(dates, times))
+    assert r.unusable is None and r.rejects == []
+    assert _frame(r).time.tolist() == [pd.Timestamp("2026-03-02T23:59:59.800Z"), pd.Timestamp("2026-03-02T23:59:59.900Z"),
+                                       pd.Timestamp("2026-03-03T00:00:00Z")]
+    # without an offset the file's '# timezone:' applies, as to any ISO time: 08:14 in Berlin in March is 07:14Z
+    local = _read_bytes(_date_time_log(["2026-03-02"] * 2, ["08:14:00.0", "08:14:00.1"], "# timezone: Europe/Berlin\n"))
+    assert _frame(local).time.iloc[0] == pd.Timestamp("2026-03-02T07:14:00Z")
+    naive = _read_bytes(_date_time_log(["2026-03-02"] * 2, ["08:14:00.0", "08:14:00.1"]))
+    assert len(naive.rejects) == 2 and "no UTC offset" in naive.rejects[0][1]
+
+
+def test_a_slash_date_beside_times_of_day_is_rejected_as_a_slash_date():
+    r = _read_bytes(_date_time_log(["02/03/2026"] * 2, ["08:14:00Z", "08:14:01Z"]))
+    assert len(r.rejects) == 2 and "day/month order is ambiguous" in r.rejects[0][1]
+
+
+def test_a_date_column_beside_full_times_is_not_used_and_said_so():
+    log = _date_time_log(["2026-03-02"] * 2, ["2026-03-02T08:14:00Z", "2026-03-02T08:14:01Z"])
+    r = _read_bytes(log)
+    assert r.rejects == [] and _frame(r).time.iloc[1] == pd.Timestamp("2026-03-02T08:14:01Z")
+    assert any("'Date' (the time column carries the date)" in w for w in r.warnings)

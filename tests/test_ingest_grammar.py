@@ -59,6 +59,8 @@ from ingest.profile import Profile
     ("Vehicle ID", "vehicle_id", None),
     ("VIN", "vin", None),
     ("Timestamp", "time", None),
+    ("Date", "date", None),
+    ("Log date (UTC)", "date", "UTC"),
     ("time [s]", "time", "s"),
     ("epoch_ms", "time", "ms"),
 ])
