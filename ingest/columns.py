@@ -12,16 +12,22 @@ name without the bracketed unit) followed by ``@ms``, e.g. ``Wheel speed FL
 [km/h]`` with ``Wheel speed FL @ms``, holds that lag in integer milliseconds
 for each cell; ingest/skew.py moves each numeric value to its own read time.
 A companion of a column that is not used is a warning.
+
+Units row: data-acquisition exports often put the units on a line of their
+own under the names (``Time,Speed FL`` then ``s,km/h``). Such a line — no
+numbers, most of its cells known units — is not data: each known unit joins
+its column's name (``Speed FL [km/h]``) unless the name carries one already.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ingest import grammar
 from ingest.profile import ColumnRule, Profile
+from ingest.reader import LogText, is_number, line_text, split_fields
 from tracktrue.units import G0_MPS2
 
 
@@ -57,6 +63,24 @@ class ColumnPlan:
     lags: dict[str, int]  # canonical signal -> index of its read-lag companion column (ms)
     ignored: list[str]  # headers not used: not recognised, or a second column for a signal (warnings)
     errors: list[str]  # column-level errors
+
+
+def with_units_row(log: LogText) -> LogText:
+    """``log`` with a units row under its header joined to the names (module docstring), else as it is."""
+    if not len(log.data_lines):
+        return log
+    first = int(log.data_lines[0])
+    cells = [c.strip().strip("[]()").strip() for c in
+             split_fields(line_text(log.data, log.line_starts, log.line_stops, first - 1), log.delimiter)]
+    written = [c for c in cells if c]
+    if abs(len(cells) - len(log.header)) > 1 or not written or any(is_number(c) for c in written):
+        return log
+    known = [c if grammar.normalise_unit(c) in grammar.UNITS else "" for c in cells]
+    if sum(map(bool, known)) * 2 <= len(written):
+        return log
+    header = [f"{name} [{unit}]" if unit and grammar.split_unit(name)[1] is None else name
+              for name, unit in zip(log.header, known + [""] * (len(log.header) - len(known)))]
+    return replace(log, header=header, data_lines=log.data_lines[1:], units_line=first)
 
 
 def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:

@@ -16,7 +16,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from ingest.columns import Column, plan_columns
+from ingest.columns import Column, plan_columns, with_units_row
 from ingest.identity import resolve_identity
 from ingest.profile import Profile
 from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
@@ -111,7 +111,7 @@ class _Flags:
 
 
 def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: LogResult) -> None:
-    log = split_lines(raw)
+    log = with_units_row(split_lines(raw))
     result.n_rows = len(log.data_lines)
     plan = plan_columns(log.header, profile)
     result.column_errors = plan.errors

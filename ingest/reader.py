@@ -58,6 +58,7 @@ class LogText:
     data_lines: np.ndarray  # 1-based line numbers of data lines (blank/comment lines excluded)
     line_starts: np.ndarray
     line_stops: np.ndarray  # exclusive, including the newline
+    units_line: int | None = None  # 1-based line of units under the header (ingest.columns.with_units_row)
 
     @property
     def quoted(self) -> bool:
@@ -150,7 +151,7 @@ def split_lines(raw: bytes) -> LogText:
         starts, stops = starts[:-1], stops[:-1]
     is_comment = buf[starts] == ord("#")
     header_idx, preamble = _find_header(data, starts, stops, is_comment)
-    header_text = _line(data, starts, stops, header_idx)
+    header_text = line_text(data, starts, stops, header_idx)
     delimiter = _sniff_delimiter(header_text)
     try:
         header = next(csv.reader([header_text], delimiter=delimiter))
@@ -187,7 +188,8 @@ def _has_content(buf, starts, stops, candidates, delimiter: str, n_fields: int) 
     return out
 
 
-def _line(data: bytes, starts, stops, i: int) -> str:
+def line_text(data: bytes, starts, stops, i: int) -> str:
+    """Line ``i`` (0-based) without its newline."""
     return data[starts[i]:stops[i]].decode("utf-8").rstrip("\n")
 
 
@@ -211,27 +213,29 @@ def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]
                 break
     if not candidates:
         raise FileUnusable("no header line (only blank or comment lines)")
-    lines = [_line(data, starts, stops, i) for i in candidates]
+    lines = [line_text(data, starts, stops, i) for i in candidates]
     for k, text in enumerate(lines[:PREAMBLE_MAX_LINES]):
         delimiter = _sniff_delimiter(text)
-        fields = _fields(text, delimiter)
-        if len(fields) < 2 or sum(_is_number(f) for f in fields) * 2 >= len(fields):
+        fields = split_fields(text, delimiter)
+        if len(fields) < 2 or sum(is_number(f) for f in fields) * 2 >= len(fields):
             continue
-        following = Counter(len(_fields(t, delimiter)) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
+        following = Counter(len(split_fields(t, delimiter)) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
         most = max(following, key=lambda n: (following[n], n)) if following else len(fields)
         if abs(len(fields) - most) <= 1:
             return candidates[k], candidates[:k]
     return candidates[0], []
 
 
-def _fields(text: str, delimiter: str) -> list[str]:
+def split_fields(text: str, delimiter: str) -> list[str]:
+    """One line's fields, quotes honoured (none if it cannot be split)."""
     try:
         return next(csv.reader([text], delimiter=delimiter), [])
     except csv.Error:
         return []
 
 
-def _is_number(field: str) -> bool:
+def is_number(field: str) -> bool:
+    """A decimal number, with a point or a comma."""
     return re.match(_NUMBER_RE, field.strip().replace(",", ".")) is not None
 
 

@@ -293,3 +293,27 @@ def test_a_date_column_beside_full_times_is_not_used_and_said_so():
     r = _read_bytes(log)
     assert r.rejects == [] and _frame(r).time.iloc[1] == pd.Timestamp("2026-03-02T08:14:01Z")
     assert any("'Date' (the time column carries the date)" in w for w in r.warnings)
+
+
+def test_a_units_row_under_the_names_gives_the_columns_their_units():
+    # names on one line, units on the next, as data-acquisition exports write them (written for tracktrue's tests)
+    log = (b"Vehicle ID;Time;Speed FL;Speed FR;Speed RL;Speed RR;Yaw rate;Lat accel;Brake\n"
+           b";s;km/h;km/h;km/h;km/h;deg/sec;m/s/s;\n"
+           b"VAN-3;0,0;36,0;36,0;36,0;36,0;2,0;0,5;0\n"
+           b"VAN-3;0,1;36,0;36,0;36,0;36,0;2,0;0,5;1\n")
+    r = _read_bytes(log, "VAN-3_20260302T071400Z.csv")
+    assert r.unusable is None and r.rejects == [] and r.column_errors == []
+    df = _frame(r)
+    assert df.wheel_speed_fl.iloc[0] == pytest.approx(10.0)  # 36 km/h
+    assert df.yaw_rate.iloc[0] == pytest.approx(2 * math.pi / 180)
+    assert df.accel_lat.iloc[0] == pytest.approx(0.5) and df.brake.tolist() == [False, True]
+    assert df.time.iloc[1] == pd.Timestamp("2026-03-02T07:14:00.100Z")
+    assert r.trips[0].lines.tolist() == [3, 4]
+
+
+def test_a_first_data_row_without_numbers_is_not_taken_for_units():
+    lines = _body().splitlines(keepends=True)
+    empty_row = b"BUS-04,2026-03-02T07:13:59.900Z" + b"," * (lines[0].count(b",") - 1) + b"\n"
+    r = _read_bytes(lines[0] + empty_row + b"".join(lines[1:]))
+    assert r.unusable is None and r.rejects == [] and len(_frame(r)) == 6
+    assert math.isnan(_frame(r).wheel_speed_fl.iloc[0])
