@@ -26,7 +26,11 @@ the run's first alerting trip instead: when the manager was first told.
 ``median_since_after_onset_days`` (flagged_since − onset of the faults flagged before their
 lamp) and ``since_before_onset_share`` say how well flagged_since estimates the onset: the
 capped lead fraction alone would reward a date reaching back before the fault began. False alarms = alert runs started on vehicles without any truth row, per
-30 healthy vehicle-days, in % of vehicles.
+30 healthy vehicle-days, in % of vehicles. Tyre distractors (truth component ``tyre_<pos>``):
+``tyres_classed_tyre`` is the share whose suspected component is a tyre at all — the
+manager checks tyres rather than booking a sensor job, issue 5's figure — and
+``tyres_at_right_wheel`` the stricter share naming the distractor's own wheel (a fleet's
+other tyre work, a spare on another wheel say, may stand out more).
 
 Two kinds of fault are reported apart, for every method alike, because no
 detector of developing disagreement can warn of them early: faults whose truth
@@ -280,7 +284,10 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
     attributed = sensor[sensor["vehicle_id"].map(comp).fillna("none") != "none"]
     attribution = (attributed["vehicle_id"].map(comp) == attributed["component"]).mean() if len(attributed) else np.nan
     tyres = t[is_tyre]
-    tyre_ok = (tyres["vehicle_id"].map(comp) == tyres["component"]).mean() if len(tyres) else np.nan
+    named = tyres["vehicle_id"].map(comp).fillna("none")
+    # classed as tyre: the manager checks tyres, not a sensor (issue 5's figure); at the right wheel: stricter
+    tyre_ok = named.str.startswith("tyre_").mean() if len(tyres) else np.nan
+    tyre_wheel = (named == tyres["component"]).mean() if len(tyres) else np.nan
     sudden = set(t.loc[not_early, "vehicle_id"])
     found = (flagged_any | lamp_lit | set(t.loc[lit, "vehicle_id"])) & sudden
     leads, slow_leads, fracs, alarm_fracs, after_onset = [], [], [], [], []
@@ -317,6 +324,7 @@ def _metrics(result: MethodResult, truth: pd.DataFrame, as_of: dt.date, lamp_lit
         "healthy_vehicle_days_per_false_alarm": vdays / starts if starts else np.inf,
         "attribution_accuracy": float(attribution),
         "tyres_classed_tyre": float(tyre_ok),
+        "tyres_at_right_wheel": float(tyre_wheel),
         "not_detectable_early (sudden/intermittent faults)": float(len(sudden)),
         "not_early_found": len(found) / len(sudden) if sudden else np.nan,
         "faults_without_sensor_signals": float(t_all["vehicle_id"].isin(unmeasured).sum()),
@@ -410,7 +418,7 @@ def _method_metrics(fleet: ScoredFleet, results: dict[str, tuple[MethodResult, d
         results = {name: (_restrict(res, within), kw) for name, (res, kw) in results.items()}
     metrics = {name: _metrics(res, truth, fleet.as_of, lamp_lit, unmeasured, **kw) for name, (res, kw) in results.items()}
     metrics["lamp_only"]["attribution_accuracy"] = np.nan
-    metrics["lamp_only"]["tyres_classed_tyre"] = np.nan
+    metrics["lamp_only"]["tyres_classed_tyre"] = metrics["lamp_only"]["tyres_at_right_wheel"] = np.nan
     return metrics
 
 

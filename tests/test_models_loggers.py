@@ -149,3 +149,14 @@ def test_a_flagged_since_before_the_onset_is_capped_in_the_lead_fraction_but_cou
     m = _metrics(res, truth, _day(39), lamp_lit={"G"})
     assert m["median_lead_fraction"] == 1.0  # 22 days of a 20-day span, capped
     assert m["median_since_after_onset_days"] == -2 and m["since_before_onset_share"] == 1.0
+
+
+def test_tyre_distractors_count_as_classed_tyre_at_any_wheel_and_at_the_right_wheel_apart():
+    # A: tyre_fl named tyre_fl; B: tyre_rr named tyre_fl (a tyre, another wheel); C: tyre_rl named a sensor;
+    # D: tyre_fr with nothing named
+    truth = _truth([("A", "tyre_fl", 5, None, "sudden"), ("B", "tyre_rr", 5, None, "sudden"),
+                    ("C", "tyre_rl", 5, None, "sudden"), ("D", "tyre_fr", 5, None, "sudden")])
+    res = _result({}, ["A", "B", "C", "D", "H1"])
+    res.vehicles["component"] = ["tyre_fl", "tyre_fl", "wheel_sensor_rl", "none", "none"]
+    m = _metrics(res, truth, _day(39), lamp_lit=set())
+    assert m["tyres_classed_tyre"] == pytest.approx(0.5) and m["tyres_at_right_wheel"] == pytest.approx(0.25)
