@@ -366,14 +366,31 @@ def _read(body: bytes, log: LogText, wanted: list[int], types: dict, decimal_poi
     )
 
 
+#: Digit grouping with the other mark as the decimal separator, unambiguous only with both marks or
+#: several groups: ``12.345,6`` / ``1.234.567`` (decimal comma), ``12,345.6`` / ``1,234,567`` (point).
+_GROUPED_RE = {True: r"^[+-]?\d{1,3}(\.\d{3})+,\d+$|^[+-]?\d{1,3}(\.\d{3}){2,}$",
+               False: r"^[+-]?\d{1,3}(,\d{3})+\.\d+$|^[+-]?\d{1,3}(,\d{3}){2,}$"}
+
+
 def to_float(col: pa.Array, decimal_comma: bool) -> tuple[np.ndarray, np.ndarray]:
-    """(values with NaN for missing or bad cells, mask of cells that are not numbers)."""
+    """(values with NaN for missing or bad cells, mask of cells that are not numbers).
+
+    Digit grouping (an odometer's ``12.345,6 km``) is read where it cannot be
+    mistaken for a decimal mark (_GROUPED_RE); only the cells that are not
+    plain numbers are tried, so a clean column pays nothing for it.
+    """
     if pa.types.is_floating(col.type):
         return col.to_numpy(zero_copy_only=False).astype(np.float64, copy=False), np.zeros(len(col), bool)
-    s = pc.utf8_trim_whitespace(col)
-    if decimal_comma:
-        s = pc.replace_substring(s, ",", ".")
+    raw = pc.utf8_trim_whitespace(col)
+    s = pc.replace_substring(raw, ",", ".") if decimal_comma else raw
     ok = pc.match_substring_regex(s, _NUMBER_RE)
+    if not pc.all(pc.fill_null(ok, True)).as_py():
+        grouped = pc.fill_null(pc.and_(pc.invert(ok), pc.match_substring_regex(raw, _GROUPED_RE[decimal_comma])), False)
+        if pc.any(grouped).as_py():
+            group_mark, point = (".", ",") if decimal_comma else (",", ".")
+            plain = pc.replace_substring(pc.replace_substring(raw, group_mark, ""), point, ".")
+            s = pc.if_else(grouped, plain, s)
+            ok = pc.or_(ok, grouped)
     good = pc.if_else(ok, s, pa.scalar(None, pa.string()))
     values = pc.cast(good, pa.float64()).to_numpy(zero_copy_only=False)
     bad = pc.fill_null(pc.invert(ok), False).to_numpy(zero_copy_only=False)

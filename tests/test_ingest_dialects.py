@@ -317,3 +317,18 @@ def test_a_first_data_row_without_numbers_is_not_taken_for_units():
     r = _read_bytes(lines[0] + empty_row + b"".join(lines[1:]))
     assert r.unusable is None and r.rejects == [] and len(_frame(r)) == 6
     assert math.isnan(_frame(r).wheel_speed_fl.iloc[0])
+
+
+@pytest.mark.parametrize("decimal_comma,cells,values", [
+    (True, ["12.345,6", "1.234.567", "-2.000,25", "3,5", "1.234"], [12345.6, 1234567.0, -2000.25, 3.5, 1.234]),
+    (False, ["12,345.6", "1,234,567", "3.5"], [12345.6, 1234567.0, 3.5]),
+])
+def test_digit_grouping_is_read_where_it_cannot_be_a_decimal_mark(decimal_comma, cells, values):
+    import pyarrow as pa
+
+    from ingest.reader import to_float
+
+    got, bad = to_float(pa.array(cells), decimal_comma)
+    assert got.tolist() == pytest.approx(values) and not bad.any()
+    # one mark alone stays what it was: '1,234' in a point-decimal file is no number (1.234 or 1234?)
+    assert to_float(pa.array(["1,234"]), False)[1].tolist() == [True]
