@@ -403,9 +403,10 @@ def clean_text(col: pa.Array) -> pa.Array:
     return pc.if_else(pc.equal(s, ""), pa.scalar(None, pa.string()), s)
 
 
-def read_keyed_csv(path, what: str, required, optional) -> tuple["LogText", dict[str, int]]:
+def read_keyed_csv(path, what: str, required, optional, canonical=None) -> tuple["LogText", dict[str, int]]:
     """A small side file (registry, service events): its lines and the column index of each known name.
 
+    ``canonical`` maps a header as written to the name it stands for (default: trimmed, lower case).
     Errors name the file and what is wrong; they are ``UserError`` because such
     a file is an argument of the command, not one of many logs.
     """
@@ -419,7 +420,7 @@ def read_keyed_csv(path, what: str, required, optional) -> tuple["LogText", dict
         text = split_lines(raw)
     except FileUnusable as exc:
         raise UserError(f"{what} {path}: {exc}") from None
-    header = [h.strip().lower() for h in text.header]
+    header = [canonical(h) if canonical else h.strip().lower() for h in text.header]
     missing = [c for c in required if c not in header]
     if missing:
         raise UserError(f"{what} {path}: missing required column(s) {', '.join(missing)} "

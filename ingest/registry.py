@@ -7,16 +7,23 @@ which the inspection plan uses to combine an inspection with a service). A row w
 loaded and is reported (file, 1-based line, problem) in ``rejects``; the
 other rows load or update the registry. A file that lacks a required column
 or cannot be read at all is a usage error.
+
+Headers are read as a spreadsheet may write them (``registry_column``): any
+case, spaces or hyphens for underscores, ``tire`` for ``tyre``, and a length in
+m, cm, mm, inches or feet, either as the name's last word (``wheelbase_mm``) or in
+brackets (``Wheelbase (mm)``); lengths are stored in metres.
 """
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from ingest.grammar import split_unit
 from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
@@ -37,6 +44,21 @@ PLAUSIBLE: dict[str, tuple[float, float]] = {
     "understeer_gradient_deg_per_g": (-2.0, 12.0),
 }
 _TEXT_COLUMNS = ("vehicle_id", "platform", "depot", "vin", "next_service_date")
+#: Length units a registry header may give, in metres (1 in = 0.0254 m, 1 ft = 0.3048 m exactly: NIST SP 811, appendix B).
+LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 0.01, "mm": 0.001, "in": 0.0254, "inch": 0.0254, "inches": 0.0254,
+                                "ft": 0.3048}
+
+
+def registry_column(header: str) -> tuple[str, float]:
+    """(the registry column a header names, factor from its unit to the column's), module docstring."""
+    name, unit = split_unit(header)
+    key = re.sub(r"[\s\-]+", "_", name.strip().lower()).replace("tire", "tyre")
+    if unit is None and (m := re.match(r"^(.*)_(m|cm|mm|in|inch|inches|ft)$", key)) and f"{m[1]}_m" in PLAUSIBLE:
+        key, unit = m[1], m[2]
+    if unit is not None and f"{key}_m" in PLAUSIBLE and unit.strip().lower() in LENGTH_UNITS:
+        return f"{key}_m", LENGTH_UNITS[unit.strip().lower()]
+    return key, 1.0
+
 
 
 @dataclass
@@ -51,7 +73,9 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
     """Validated registry rows (one per vehicle_id) and what was rejected."""
     result = RegistryResult(str(path))
     needed = tuple(c for c in REGISTRY_REQUIRED if c not in ESTIMATED_WHEN_BLANK)
-    log, index = read_keyed_csv(path, "vehicle registry", needed, (*sorted(ESTIMATED_WHEN_BLANK), *REGISTRY_OPTIONAL))
+    log, index = read_keyed_csv(path, "vehicle registry", needed, (*sorted(ESTIMATED_WHEN_BLANK), *REGISTRY_OPTIONAL),
+                                canonical=lambda h: registry_column(h)[0])
+    factor = {c: registry_column(log.header[i])[1] for c, i in index.items()}
     numeric = [index[c] for c in PLAUSIBLE if c in index]
     text = [index[c] for c in _TEXT_COLUMNS if c in index]
     parsed = parse_rows(log, numeric, text)
@@ -70,6 +94,7 @@ def read_registry(path: Path) -> tuple[pd.DataFrame, RegistryResult]:
             data[c] = np.full(n, np.nan)
             continue
         values, bad = to_float(parsed.columns[index[c]], log.delimiter != ",")
+        values = values * factor[c]
         data[c] = values
         required = c in REGISTRY_REQUIRED and c not in ESTIMATED_WHEN_BLANK
         for i in np.flatnonzero(bad):

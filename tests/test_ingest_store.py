@@ -208,6 +208,22 @@ def test_a_blank_or_absent_steering_ratio_loads_as_missing_for_estimation_and_ot
                        "(millimetres? the column is in metres)"}
 
 
+def test_registry_headers_as_a_spreadsheet_writes_them_with_lengths_in_other_units(tmp_path):
+    # the same van in metres and in a spreadsheet's headers: mm, cm, inches (1 in = 0.0254 m exactly, NIST SP 811)
+    vehicles, mine, _ = _load_registry(tmp_path, (
+        "Vehicle ID,Platform,Wheelbase (mm),track_front_cm,Track Rear [m],Steering Ratio,Tire radius (in),Depot\n"
+        "V0,van-a,3400,170,1.7,16,13,North\n"))
+    assert mine == {}
+    row = vehicles.loc["V0"]
+    assert row.wheelbase_m == pytest.approx(3.4) and row.track_front_m == pytest.approx(1.7)
+    assert row.track_rear_m == 1.7 and row.steering_ratio == 16 and row.tyre_radius_m == pytest.approx(0.3302)
+    assert row.depot == "North"
+    _, mine, _ = _load_registry(tmp_path / "range", (
+        "vehicle_id,platform,wheelbase_mm,track_front_m,track_rear_m,steering_ratio,tyre_radius_m\n"
+        "V0,van-a,34,1.7,1.7,16,0.33\n"))
+    assert mine == {2: "wheelbase_m = 0.034 is outside the plausible range 1.5..8"}  # checked in metres
+
+
 def test_registry_next_service_date_is_published_as_a_date_and_a_bad_one_is_reported(tmp_path):
     vehicles, mine, _ = _load_registry(tmp_path, (
         "vehicle_id,platform,wheelbase_m,track_front_m,track_rear_m,steering_ratio,tyre_radius_m,next_service_date\n"
