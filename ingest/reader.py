@@ -84,7 +84,11 @@ class ParsedRows:
 def decode(raw: bytes) -> tuple[bytes, str]:
     """Return UTF-8 bytes and the encoding they were read as (``gzip+…`` for a compressed file)."""
     if raw.startswith(b"\x1f\x8b"):
-        text, encoding = decode(_gunzip(raw))
+        inner = _gunzip(raw)
+        try:
+            text, encoding = decode(inner)
+        except FileUnusable as exc:
+            raise FileUnusable(f"gzip-compressed, and what it holds: {exc}") from None
         return text, f"gzip+{encoding}"
     if raw.startswith(b"\xef\xbb\xbf"):
         raw, bom = raw[3:], "utf-8-sig"

@@ -251,6 +251,7 @@ def test_a_gzipped_log_reads_as_the_plain_one_and_a_cut_one_says_truncated():
     assert r.unusable is None and _frame(r).equals(_frame(plain))
     assert "truncated" in _read_bytes(packed[: len(packed) // 2], "log.csv.gz").unusable
     assert "cannot be decompressed" in _read_bytes(packed[:10] + b"\x00" * 40, "log.csv.gz").unusable
+    assert "gzip-compressed, and what it holds: binary" in _read_bytes(gzip.compress(bytes(range(256)) * 8)).unusable
 
 
 def test_folders_are_searched_for_gzipped_exports_too(tmp_path):
