@@ -8,8 +8,9 @@ CSV format (``tracktrue service-events FILE.csv``, ``tracktrue ingest
 --service-events FILE.csv``, ``tracktrue update --service-events FILE.csv``):
 a header with ``vehicle_id``, ``date`` (YYYY-MM-DD), ``kind`` and optionally
 ``component`` and ``note``; comma, semicolon or tab separated, any case in
-the header. ``kind`` is one of ``tracktrue.schema.SERVICE_EVENT_KINDS``
-(``alignment`` is read as ``wheel_alignment``); ``component`` is one of
+the header. ``kind`` is one of ``tracktrue.schema.SERVICE_EVENT_KINDS`` or a
+spelling in ``SERVICE_EVENT_KIND_ALIASES`` (``alignment``, ``Tire replacement``: any case,
+spaces or hyphens for underscores, ``tire`` for ``tyre``); ``component`` is one of
 ``tracktrue.schema.COMPONENTS``, an area from ``SERVICE_EVENT_AREAS``
 (``front_axle``, ``rear_axle``, ``tyres`` for all four) or empty for the whole
 vehicle (``none`` is read as empty).
@@ -109,8 +110,8 @@ def validate_events(rows: pd.DataFrame, known_vehicles: set[str], today: dt.date
     problems: list[list[str]] = [[] for _ in range(len(rows))]
     vid = rows["vehicle_id"].fillna("").astype(str).str.strip()
     kind_text = rows["kind"].fillna("").astype(str).str.strip().str.lower()
-    kind = kind_text.replace(SERVICE_EVENT_KIND_ALIASES)
-    component = rows["component"].fillna("").astype(str).str.strip().str.lower().replace({"none": ""})
+    kind = words_key(kind_text).replace(SERVICE_EVENT_KIND_ALIASES)
+    component = words_key(rows["component"].fillna("").astype(str)).replace({"none": ""})
     date_text = rows["date"].fillna("").astype(str).str.strip()
     dates = [_parse_date(d) for d in date_text]
     for i, (v, k, kt, c, d, dtext) in enumerate(zip(vid, kind, kind_text, component, dates, date_text)):
@@ -144,6 +145,13 @@ def validate_events(rows: pd.DataFrame, known_vehicles: set[str], today: dt.date
     ok = np.array([not p for p in problems], bool)
     rejects = [(int(line), "; ".join(p)) for line, p, good in zip(rows["line"], problems, ok) if not good]
     return events[ok].reset_index(drop=True), rejects
+
+
+def words_key(text: pd.Series) -> pd.Series:
+    """A maintenance system's wording as our vocabulary's key: ``Tire Rotation`` -> ``tyre_rotation``,
+    ``wheel sensor FL`` -> ``wheel_sensor_fl``, ``front-axle`` -> ``front_axle``."""
+    key = text.str.strip().str.lower().str.replace(r"[\s\-/]+", "_", regex=True)
+    return key.str.replace(r"(?<![a-z])tire", "tyre", regex=True)
 
 
 def _parse_date(text: str) -> dt.date | None:

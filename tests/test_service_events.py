@@ -89,6 +89,17 @@ def test_reimporting_the_same_file_adds_nothing_and_a_changed_note_updates_it(st
     assert table["note"].tolist() == ["winter set (3 mm tread)"]
 
 
+def test_a_maintenance_systems_wording_reads_as_our_kinds_and_components(store, tmp_path):
+    csv = write(tmp_path / "events.csv", "vehicle_id,date,kind,component\n"
+                "VAN-01,2026-05-01,Tire Replacement,Tire FL\nVAN-01,2026-05-02,tyre rotation,all tyres\n"
+                "VAN-02,2026-05-02,Sensor replacement,Wheel sensor RR\nVAN-02,2026-05-03,Tyres fitted,rear-axle\n")
+    summary = import_service_events(csv, store, today=TODAY)
+    table = store.read_table("service_events").sort_values(["vehicle_id", "date"])
+    assert table[["kind", "component"]].values.tolist() == [
+        ["tyre_change", "tyre_fl"], ["sensor_replaced", "wheel_sensor_rr"], ["tyre_change", "rear_axle"]]
+    assert [line for line, _ in summary.rejects] == [3]  # 'all tyres' names no area: 'tyres' does
+
+
 def test_published_table_has_the_contract_columns_and_models_reads_it(store, tmp_path):
     csv = write(tmp_path / "events.csv", "Vehicle_ID;Date;Kind\nVAN-02;2026-05-04;Alignment\n")  # no component/note
     import_service_events(csv, store, today=TODAY)

@@ -212,8 +212,16 @@ SERVICE_EVENT_KINDS: tuple[str, ...] = (
     "spare_removed",
     "no_fault_found",
 )
-#: Other spellings accepted on import and stored as the kind they name.
-SERVICE_EVENT_KIND_ALIASES: dict[str, str] = {"alignment": "wheel_alignment"}
+#: Other spellings accepted on import and stored as the kind they name (after lower case, spaces and
+#: hyphens as underscores, and "tire" as "tyre": ingest.service_events.words_key).
+SERVICE_EVENT_KIND_ALIASES: dict[str, str] = {
+    "alignment": "wheel_alignment", "tracking": "wheel_alignment",
+    "tyre_replacement": "tyre_change", "tyre_replaced": "tyre_change", "tyres_replaced": "tyre_change",
+    "new_tyres": "tyre_change", "tyre_fitted": "tyre_change", "tyres_fitted": "tyre_change",
+    "tyre_rotated": "tyre_rotation", "tyres_rotated": "tyre_rotation", "rotation": "tyre_rotation",
+    "sensor_replacement": "sensor_replaced", "tone_ring_replacement": "tone_ring_replaced",
+    "recalibration": "calibration", "nff": "no_fault_found", "spare_on": "spare_fitted", "spare_off": "spare_removed",
+}
 #: Components a service event may name besides ``COMPONENTS``: work on a whole
 #: axle or on all four tyres. An empty component means the whole vehicle.
 SERVICE_EVENT_AREAS: tuple[str, ...] = ("front_axle", "rear_axle", "tyres")
