@@ -80,7 +80,7 @@ def with_units_row(log: LogText) -> LogText:
         return log
     header = [f"{name} [{unit}]" if unit and grammar.split_unit(name)[1] is None else name
               for name, unit in zip(log.header, known + [""] * (len(log.header) - len(known)))]
-    return replace(log, header=header, data_lines=log.data_lines[1:], units_line=first)
+    return replace(log, header=header, data_lines=log.data_lines[1:])
 
 
 def plan_columns(header: list[str], profile: Profile) -> ColumnPlan:

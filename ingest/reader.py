@@ -14,7 +14,6 @@ by pyarrow's CSV reader: no per-line Python loop.
 from __future__ import annotations
 
 import csv
-import gzip
 import io
 import re
 import zlib
@@ -58,7 +57,6 @@ class LogText:
     data_lines: np.ndarray  # 1-based line numbers of data lines (blank/comment lines excluded)
     line_starts: np.ndarray
     line_stops: np.ndarray  # exclusive, including the newline
-    units_line: int | None = None  # 1-based line of units under the header (ingest.columns.with_units_row)
 
     @property
     def quoted(self) -> bool:
@@ -110,22 +108,23 @@ def decode(raw: bytes) -> tuple[bytes, str]:
 
 
 def _gunzip(raw: bytes) -> bytes:
-    """The decompressed bytes of a gzip file, bounded by GZIP_MAX_BYTES."""
-    inflater = zlib.decompressobj(16 + zlib.MAX_WBITS)  # gzip framing
-    try:
-        out = inflater.decompress(raw, GZIP_MAX_BYTES)
-    except zlib.error as exc:
-        raise FileUnusable(f"gzip-compressed but cannot be decompressed ({exc})") from None
-    if inflater.unconsumed_tail:
-        raise FileUnusable(f"gzip-compressed and larger than {GZIP_MAX_BYTES >> 30} GiB decompressed")
-    if not inflater.eof:
-        raise FileUnusable("gzip-compressed but truncated (the download or copy was cut short)")
-    if inflater.unused_data.startswith(b"\x1f\x8b"):  # concatenated members (gzip -c a b)
+    """The decompressed bytes of a gzip file (its members one after another, as ``gzip -c a b``
+    writes them), bounded by GZIP_MAX_BYTES in all."""
+    out, rest, budget = [], raw, GZIP_MAX_BYTES
+    while rest.startswith(b"\x1f\x8b"):
+        inflater = zlib.decompressobj(16 + zlib.MAX_WBITS)  # gzip framing
         try:
-            out += gzip.decompress(inflater.unused_data)
-        except (OSError, EOFError, zlib.error) as exc:
-            raise FileUnusable(f"gzip-compressed but a later member cannot be decompressed ({exc})") from None
-    return out
+            chunk = inflater.decompress(rest, budget)  # a max_length of 0 would be no bound: budget stays > 0
+        except zlib.error as exc:
+            raise FileUnusable(f"gzip-compressed but cannot be decompressed ({exc})") from None
+        budget -= len(chunk)
+        if inflater.unconsumed_tail or (budget <= 0 and inflater.unused_data):
+            raise FileUnusable(f"gzip-compressed and larger than {GZIP_MAX_BYTES >> 30} GiB decompressed")
+        if not inflater.eof:
+            raise FileUnusable("gzip-compressed but truncated (the download or copy was cut short)")
+        out.append(chunk)
+        rest = inflater.unused_data
+    return b"".join(out)
 
 
 def _control_fraction(head: bytes) -> float:

@@ -252,6 +252,8 @@ def test_a_gzipped_log_reads_as_the_plain_one_and_a_cut_one_says_truncated():
     assert "truncated" in _read_bytes(packed[: len(packed) // 2], "log.csv.gz").unusable
     assert "cannot be decompressed" in _read_bytes(packed[:10] + b"\x00" * 40, "log.csv.gz").unusable
     assert "gzip-compressed, and what it holds: binary" in _read_bytes(gzip.compress(bytes(range(256)) * 8)).unusable
+    two = gzip.compress(_body()[:200]) + gzip.compress(_body()[200:])  # members one after another: gzip -c a b
+    assert _frame(_read_bytes(two, "log.csv.gz")).equals(_frame(plain))
 
 
 def test_folders_are_searched_for_gzipped_exports_too(tmp_path):
@@ -333,3 +335,14 @@ def test_digit_grouping_is_read_where_it_cannot_be_a_decimal_mark(decimal_comma,
     assert got.tolist() == pytest.approx(values) and not bad.any()
     # one mark alone stays what it was: '1,234' in a point-decimal file is no number (1.234 or 1234?)
     assert to_float(pa.array(["1,234"]), False)[1].tolist() == [True]
+
+
+def test_a_gzip_file_expanding_past_the_bound_is_refused_not_read(monkeypatch):
+    import gzip
+
+    import ingest.reader as reader
+
+    monkeypatch.setattr(reader, "GZIP_MAX_BYTES", 100)
+    assert "larger than" in _read_bytes(gzip.compress(_body()), "log.csv.gz").unusable
+    two = gzip.compress(_body()[:60]) + gzip.compress(_body()[60:])
+    assert "larger than" in _read_bytes(two, "log.csv.gz").unusable
