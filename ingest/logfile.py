@@ -19,7 +19,7 @@ import pyarrow.compute as pc
 from ingest.columns import Column, plan_columns, with_units_row
 from ingest.identity import resolve_identity
 from ingest.profile import Profile
-from ingest.reader import FileUnusable, clean_text, parse_rows, split_lines, to_float
+from ingest.reader import FileUnusable, clean_text, line_text, parse_rows, split_lines, to_float
 from ingest.samples import SAMPLE_SCHEMA, SWITCH_SIGNALS
 from ingest.signs import sign_warnings
 from ingest.skew import MAX_LAG_MS, align
@@ -117,7 +117,7 @@ def _read(raw, file_name, folder_name, profile, gap_s, registry_vins, result: Lo
     result.column_errors = plan.errors
     if log.preamble_lines:
         first = log.preamble_lines[0]
-        text = log.data[log.line_starts[first - 1]:log.line_stops[first - 1]].decode("utf-8", "replace").strip()
+        text = line_text(log.data, log.line_starts, log.line_stops, first - 1).strip()
         result.warnings.append(f"{len(log.preamble_lines)} line(s) before the header on line {log.header_line} "
                                f"read as a preamble, not data (line {first}: {text[:60]!r})")
     if plan.ignored:
@@ -220,8 +220,8 @@ def _with_date(parsed, cols: dict[str, Column], result: LogResult) -> pa.Array:
     if not times_of_day(text.cast(pa.string())):
         result.warnings.append(f"columns not used: {cols['date'].header!r} (the time column carries the date)")
         return text
-    return pc.binary_join_element_wise(pc.utf8_trim_whitespace(date.cast(pa.string())),
-                                       pc.utf8_trim_whitespace(text.cast(pa.string())), " ")
+    time_of_day = pc.replace_substring_regex(pc.utf8_trim_whitespace(text.cast(pa.string())), r"^(\d):", r"0\1:")
+    return pc.binary_join_element_wise(pc.utf8_trim_whitespace(date.cast(pa.string())), time_of_day, " ")
 
 
 def _opt(parsed, cols: dict[str, Column], sig: str):

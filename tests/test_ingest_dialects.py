@@ -280,7 +280,7 @@ def test_a_date_column_beside_times_of_day_makes_full_times_across_midnight():
     assert _frame(r).time.tolist() == [pd.Timestamp("2026-03-02T23:59:59.800Z"), pd.Timestamp("2026-03-02T23:59:59.900Z"),
                                        pd.Timestamp("2026-03-03T00:00:00Z")]
     # without an offset the file's '# timezone:' applies, as to any ISO time: 08:14 in Berlin in March is 07:14Z
-    local = _read_bytes(_date_time_log(["2026-03-02"] * 2, ["08:14:00.0", "08:14:00.1"], "# timezone: Europe/Berlin\n"))
+    local = _read_bytes(_date_time_log(["2026-03-02"] * 2, ["8:14:00.0", "8:14:00.1"], "# timezone: Europe/Berlin\n"))
     assert _frame(local).time.iloc[0] == pd.Timestamp("2026-03-02T07:14:00Z")
     naive = _read_bytes(_date_time_log(["2026-03-02"] * 2, ["08:14:00.0", "08:14:00.1"]))
     assert len(naive.rejects) == 2 and "no UTC offset" in naive.rejects[0][1]
