@@ -52,7 +52,7 @@ LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 0.01, "mm": 0.001, "in": 0.025
 def registry_column(header: str) -> tuple[str, float]:
     """(the registry column a header names, factor from its unit to the column's), module docstring."""
     name, unit = split_unit(header)
-    key = re.sub(r"[\s\-]+", "_", name.strip().lower()).replace("tire", "tyre")
+    key = re.sub(r"(?<![a-z])tire", "tyre", re.sub(r"[\s\-]+", "_", name.strip().lower()))
     if unit is None and (m := re.match(r"^(.*)_(m|cm|mm|in|inch|inches|ft)$", key)) and f"{m[1]}_m" in PLAUSIBLE:
         key, unit = m[1], m[2]
     if unit is not None and f"{key}_m" in PLAUSIBLE and unit.strip().lower() in LENGTH_UNITS:
