@@ -43,8 +43,12 @@ BOUNDS_SI: dict[str, tuple[float, float]] = {
     "odometer": (0.0, 5e6),  # km
 }
 _SI_UNIT = {**SAMPLE_UNITS, "odometer": "km"}
-SWITCH_ON = ["1", "1.0", "true", "t", "on", "yes", "y", "active", "lit"]
+SWITCH_ON = ["1", "1.0", "true", "t", "on", "yes", "y", "active", "lit", "flashing", "blinking"]
 SWITCH_OFF = ["0", "0.0", "false", "f", "off", "no", "n", "inactive"]
+#: Read as unknown: the "error" and "not available" states of a two-bit status (SAE J1939-71's
+#: discrete parameters: 00 off, 01 on, 10 error, 11 not available), as bus loggers of heavy
+#: vehicles write them, and their words.
+SWITCH_UNKNOWN = ["2", "3", "2.0", "3.0", "error", "err", "not available", "n/a", "na", "unknown", "snv"]
 
 
 @dataclass
@@ -246,6 +250,8 @@ def _range_message(col: Column, raw: np.ndarray, si: np.ndarray, lo: float, hi: 
 
 def _switch(arr: pa.Array) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     s = pc.utf8_lower(clean_text(arr))
+    unknown = pc.fill_null(pc.is_in(s, pa.array(SWITCH_UNKNOWN)), False)
+    s = pc.if_else(unknown, pa.scalar(None, pa.string()), s)
     missing = s.is_null().to_numpy(zero_copy_only=False)
     on = pc.fill_null(pc.is_in(s, pa.array(SWITCH_ON)), False).to_numpy(zero_copy_only=False)
     off = pc.fill_null(pc.is_in(s, pa.array(SWITCH_OFF)), False).to_numpy(zero_copy_only=False)
