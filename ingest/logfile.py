@@ -47,7 +47,7 @@ SWITCH_ON = ["1", "1.0", "true", "t", "on", "yes", "y", "active", "lit", "flashi
 SWITCH_OFF = ["0", "0.0", "false", "f", "off", "no", "n", "inactive"]
 #: Read as unknown: the "error" and "not available" states of a two-bit status (SAE J1939-71's
 #: discrete parameters: 00 off, 01 on, 10 error, 11 not available), as bus loggers of heavy
-#: vehicles write them, and their words.
+#: vehicles write them, and their words (the state table from memory).
 SWITCH_UNKNOWN = ["2", "3", "2.0", "3.0", "error", "err", "not available", "n/a", "na", "unknown", "snv"]
 
 

@@ -349,7 +349,7 @@ def test_a_gzip_file_expanding_past_the_bound_is_refused_not_read(monkeypatch):
 
 
 def test_two_bit_status_error_and_not_available_read_as_unknown_and_flashing_as_on():
-    # SAE J1939-71 discrete parameters: 00 off, 01 on, 10 error, 11 not available
+    # SAE J1939-71 discrete parameters: 00 off, 01 on, 10 error, 11 not available (from memory)
     rows = "".join(f"2026-03-02T07:00:0{i}Z,36,36,{brake},{lamp}\n"
                    for i, (brake, lamp) in enumerate([(0, "0"), (1, "flashing"), (2, "1"), (3, "3"), (1, "Error")]))
     r = _read_bytes(("# vehicle: TRK-9\ntimestamp,FL [km/h],FR [km/h],Brake,ABS lamp\n" + rows).encode())
