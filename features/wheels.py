@@ -331,5 +331,6 @@ def linear_quantile(x: np.ndarray, q: float) -> float:
 
 
 def trip_distance_km(trip: TripArrays, speed: np.ndarray) -> float:
-    """Distance = ∫ speed dt, in km; ``speed`` the median of the four wheel speeds (Windows.speed)."""
-    return float(np.nansum(speed * trip.dt) / 1000.0)
+    """Distance = ∫ |speed| dt, in km; ``speed`` the median of the four wheel speeds (Windows.speed),
+    negative while reversing where the sensors know the direction."""
+    return float(np.nansum(np.abs(speed) * trip.dt) / 1000.0)

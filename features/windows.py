@@ -73,7 +73,11 @@ class Windows:
 
 
 def find_windows(trip: TripArrays, spec: VehicleSpec) -> Windows:
-    """The qualifying windows of one trip (DESIGN.md feature table)."""
+    """The qualifying windows of one trip (DESIGN.md feature table).
+
+    Reversing, where the logs carry signed wheel speeds, is in none: not moving (three wheels at
+    MOVING_SPEED_MPS or more) and not standing still (|speed| below STANDSTILL_SPEED_MPS).
+    """
     speed = trip.speed
     accel = smooth_derivative(speed, trip)
     brake_on = trip.brake == 1.0
@@ -127,7 +131,7 @@ def _standstill(trip: TripArrays, brake_on: np.ndarray) -> tuple[np.ndarray, str
         return np.zeros(trip.n, dtype=bool), "too_few_wheel_signals"
     w = trip.wheels if logged.all() else trip.wheels[logged]  # a row pick copies all four traces
     with np.errstate(invalid="ignore"):
-        still = np.all(np.isfinite(w) & (w < STANDSTILL_SPEED_MPS), axis=0)
+        still = np.all(np.abs(w) < STANDSTILL_SPEED_MPS, axis=0)  # NaN is not still; reversing (< 0) moves
     width = window_samples(SMOOTH_S, trip.rate_hz, minimum=3)
     confirmations = 0
     for name, limit in (("yaw_rate", STANDSTILL_YAW_STD_RADPS), ("accel_long", STANDSTILL_ACCEL_STD_MPS2)):

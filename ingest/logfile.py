@@ -33,9 +33,13 @@ from tracktrue.schema import NUMERIC_SIGNALS, SAMPLE_UNITS, WHEEL_SPEED_COLUMNS
 #: yaw |r| <= 3 rad/s (172 deg/s; a car spinning at speed stays below ~1.5);
 #: steering-wheel angle |delta| <= 15 rad (~2.4 turns each way, more than any
 #: lock-to-lock); |a| <= 30 m/s^2 (~3 g, beyond tyre grip). Common practice, not a standard.
+#: The fastest a vehicle reverses, m/s (about 54 km/h: well above any manoeuvre, common practice).
+REVERSE_MAX_MPS = 15.0
 BOUNDS_SI: dict[str, tuple[float, float]] = {
-    **{c: (0.0, 90.0) for c in WHEEL_SPEED_COLUMNS},
-    "vehicle_speed": (0.0, 90.0),
+    # negative while reversing where the sensors know the direction (active sensors); features
+    # leave reversing out of every window (features/windows.py)
+    **{c: (-REVERSE_MAX_MPS, 90.0) for c in WHEEL_SPEED_COLUMNS},
+    "vehicle_speed": (-REVERSE_MAX_MPS, 90.0),
     "yaw_rate": (-3.0, 3.0),
     "steering_angle": (-15.0, 15.0),
     "accel_long": (-30.0, 30.0),

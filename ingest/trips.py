@@ -49,7 +49,8 @@ def trip_quality(us: np.ndarray, values: dict[str, np.ndarray], missing: list[np
     t = (us - us[0]) / 1e6
     distance_km = float("nan")
     if speed is not None:
-        seg = 0.5 * (speed[1:] + speed[:-1]) * np.diff(t)
+        along = np.abs(speed)  # reversing (signed speeds) adds distance too
+        seg = 0.5 * (along[1:] + along[:-1]) * np.diff(t)
         distance_km = float(np.nansum(seg) / 1000.0)
     dt = np.diff(t)
     rate = float(np.median(1.0 / dt)) if len(dt) else float("nan")

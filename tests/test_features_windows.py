@@ -155,3 +155,25 @@ def test_lamps_and_trouble_codes_are_summarised_per_trip():
     samples.loc[samples.index[100], "dtc"] = "TT-Y01"
     row = extract_trip_features(samples, SPEC)
     assert row["lamp_esc_on"] and not row["lamp_abs_on"] and row["dtc"] == "TT-Y01"
+
+
+def test_reversing_with_signed_wheel_speeds_is_in_no_window_and_adds_its_distance():
+    # active sensors that know the direction report negative speeds while reversing: neither
+    # standing still (its rest values would take the manoeuvre's motion) nor a moving window
+    forward = make_trip(seed=1)
+    still = (forward[[f"wheel_speed_{p}" for p in POSITIONS]] == 0.0).all(axis=1).to_numpy()
+    start = np.flatnonzero(still)[len(np.flatnonzero(still)) // 2]
+    n = int(15 * 10.0)  # 15 s at 10 Hz, inside one stop
+    assert still[start:start + n].all()
+    backing = forward.copy()
+    for col in (*(f"wheel_speed_{p}" for p in POSITIONS), "vehicle_speed"):
+        backing.loc[start:start + n - 1, col] = -1.5
+    import warnings
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        a, b = extract_trip_features(forward, SPEC), extract_trip_features(backing, SPEC)
+    assert b["standstill_s"] <= a["standstill_s"] - 14.0
+    assert b["moving_s"] == a["moving_s"] and b["cruise_s"] == a["cruise_s"]
+    assert b["distance_km"] == pytest.approx(a["distance_km"] + 15 * 1.5 / 1000, abs=2e-3)
+    assert all(b[f"wheel_dropouts_{p}"] == a[f"wheel_dropouts_{p}"] for p in POSITIONS)
+    assert b["wheel_ratio_fl_pct"] == pytest.approx(a["wheel_ratio_fl_pct"], abs=1e-9)

@@ -357,3 +357,11 @@ def test_two_bit_status_error_and_not_available_read_as_unknown_and_flashing_as_
     df = _frame(r)
     assert df.brake.tolist()[:2] == [False, True] and df.brake.isna().tolist() == [False, False, True, True, False]
     assert df.lamp_abs.tolist()[1:3] == [True, True] and df.lamp_abs.isna().tolist()[3:] == [True, True]
+
+
+def test_signed_wheel_speeds_while_reversing_are_kept_and_implausible_ones_rejected():
+    rows = ("# vehicle: TRK-3\ntimestamp,FL [km/h],FR [km/h]\n2026-03-02T07:00:00Z,-5,-5\n"
+            "2026-03-02T07:00:01Z,-80,-5\n2026-03-02T07:00:02Z,0,0\n")
+    r = _read_bytes(rows.encode())
+    assert [line for line, _ in r.rejects] == [4] and "outside the physical range" in r.rejects[0][1]
+    assert _frame(r).wheel_speed_fl.tolist() == pytest.approx([-5 / 3.6, 0.0])
