@@ -177,3 +177,14 @@ def test_reversing_with_signed_wheel_speeds_is_in_no_window_and_adds_its_distanc
     assert b["distance_km"] == pytest.approx(a["distance_km"] + 15 * 1.5 / 1000, abs=2e-3)
     assert all(b[f"wheel_dropouts_{p}"] == a[f"wheel_dropouts_{p}"] for p in POSITIONS)
     assert b["wheel_ratio_fl_pct"] == pytest.approx(a["wheel_ratio_fl_pct"], abs=1e-9)
+
+
+def test_a_flickering_dropout_counts_as_one_episode_whatever_the_logging_rate():
+    import synthetic_fleet
+
+    counts = {}
+    for hz in (10.0, 50.0, 100.0):
+        samples, spec = synthetic_fleet.trip_samples(seed=7, fault="air_gap_fr", duration_s=600.0, rate_hz=hz)
+        counts[hz] = extract_trip_features(samples, spec)["wheel_dropouts_fr"]
+    assert counts[10.0] > 10.0  # the air gap does drop the signal out
+    assert max(counts.values()) <= 1.5 * min(counts.values())  # unmerged: 163, 564 and 1,290 per 100 km
