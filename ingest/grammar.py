@@ -111,7 +111,7 @@ _PATTERNS: tuple[tuple[str, str], ...] = (
                    rf"|g (longitudinal|long|lon|x)|ax)( .*)?"),
     ("accel_lat", rf"((.* )?{_ACCEL_WORDS} (lateral|lat|y)|(lateral|lat|y) ({_ACCEL_WORDS}|g)"
                   rf"|g (lateral|lat|y)|ay)( .*)?"),
-    ("vehicle_speed", r"((vehicle|veh|road|ground) )?(speed|spd|vss)"),
+    ("vehicle_speed", r"((vehicle|veh|road|ground|gps|gnss) )?(speed|spd|vss)"),
 )
 _COMPILED = tuple((sig, re.compile(rf"^(?:{pat})$")) for sig, pat in _PATTERNS)
 _WHEEL_RE = re.compile(rf"(^| ){_WHEEL_WORDS}( |$)|(^| )(speed|spd)( |$)")
@@ -119,7 +119,7 @@ _POSITION_RES = {
     pos: re.compile(r"(^| )(" + "|".join(re.escape(s) for s in spellings) + r")( |$)")
     for pos, spellings in _POSITIONS.items()
 }
-_UNIT_RE = re.compile(r"^(?P<name>.*?)\s*[\[(](?P<unit>[^\[\]()]*)[\])]\s*$")
+_UNIT_RE = re.compile(r"^(?P<name>.*?)\s*[\[({](?P<unit>[^\[\](){}]*)[\])}]\s*$")
 
 
 @dataclass(frozen=True)
@@ -135,7 +135,7 @@ def words(name: str) -> str:
     """Lower-case words of a header name, joined by single spaces."""
     text = re.sub(r"(?<=[a-z0-9])(?=[A-Z])", " ", name)
     text = re.sub(r"(?<=[A-Z])(?=[A-Z][a-z])", " ", text)
-    text = re.sub(r"[_\-./:#]+", " ", text.lower())
+    text = re.sub(r"[_\-./:#,;|]+", " ", text.lower())
     return " ".join(text.split())
 
 
@@ -166,7 +166,7 @@ def signal_of(name_words: str) -> str | None:
 
 
 def split_unit(header: str) -> tuple[str, str | None]:
-    """(name, unit as written in trailing brackets or None)."""
+    """(name, unit as written in trailing brackets — [], () or {} — or None)."""
     text = header.strip().strip('"').strip()
     m = _UNIT_RE.match(text)
     return (m.group("name"), m.group("unit").strip() or None) if m else (text, None)

@@ -199,14 +199,15 @@ def line_text(data: bytes, starts, stops, i: int) -> str:
 def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]]:
     """The header's line index and the preamble lines before it (indices).
 
-    The header is the first non-blank, non-comment line that looks like one:
-    two or more fields, fewer than half of them numbers, and about as many
-    fields (±1, for a trailing delimiter) as most of the next
-    PREAMBLE_BODY_LINES lines, so one broken first row does not disown its
-    header and a few ``key,value`` lines do not pass for one. Title or
-    ``key: value`` lines ahead of it are a preamble. Where no
-    line within PREAMBLE_MAX_LINES looks like a header, the first line is
-    taken, so its problem (one column, say) is the one reported.
+    The header is the first non-blank, non-comment line that looks like one —
+    two or more fields, more of them names (text) than numbers — and has about
+    as many fields (±1, for a trailing delimiter) as one of the most frequent
+    counts of the next PREAMBLE_BODY_LINES lines, so one broken first row does
+    not disown its header and a few ``key,value`` lines do not pass for one. A
+    later line is the header only after a preamble: lines of under half its
+    fields (a title, ``key: value``, ``key,value``), with lines after it. Where
+    no line within PREAMBLE_MAX_LINES qualifies, the first line is taken, so
+    its problem (one column, say) is the one reported.
     """
     candidates = []
     for i in np.flatnonzero(~is_comment):
@@ -220,11 +221,19 @@ def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]
     for k, text in enumerate(lines[:PREAMBLE_MAX_LINES]):
         delimiter = _sniff_delimiter(text)
         fields = split_fields(text, delimiter)
-        if len(fields) < 2 or sum(is_number(f) for f in fields) * 2 >= len(fields):
+        numbers = sum(is_number(f) for f in fields)
+        names = sum(bool(f.strip()) for f in fields) - numbers
+        if len(fields) < 2 or names <= numbers:
             continue
+        if k and any(2 * len(split_fields(t, delimiter)) >= len(fields) for t in lines[:k]):
+            continue  # what came before is not a preamble to this line
         following = Counter(len(split_fields(t, delimiter)) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
-        most = max(following, key=lambda n: (following[n], n)) if following else len(fields)
-        if abs(len(fields) - most) <= 1:
+        if not following:
+            if k == 0:
+                return candidates[0], []
+            continue
+        top = max(following.values())
+        if any(abs(len(fields) - n) <= 1 for n, c in following.items() if c == top):
             return candidates[k], candidates[:k]
     return candidates[0], []
 

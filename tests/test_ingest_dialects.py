@@ -365,3 +365,13 @@ def test_signed_wheel_speeds_while_reversing_are_kept_and_implausible_ones_rejec
     r = _read_bytes(rows.encode())
     assert [line for line, _ in r.rejects] == [4] and "outside the physical range" in r.rejects[0][1]
     assert _frame(r).wheel_speed_fl.tolist() == pytest.approx([-5 / 3.6, 0.0])
+
+
+def test_a_header_over_rows_of_mixed_field_counts_is_kept_and_no_later_row_taken_for_it():
+    # found by tests/test_ingest_properties.py: rows of 6, 5 and 7 fields under a 5-field header
+    log = ("time,WSS FL [km/h],WSS FR [km/h],Yaw rate [deg/s],Brake\n"
+           "2026-03-02T07:00:00.0Z,0.000,0.000,0.00,0,extra\n2026-03-02T07:00:00.1Z,0.000,0.000,0.00,0\n"
+           "2026-03-02T07:00:00.2Z,12,5,,0.000,,on\n")
+    r = read_log(log.encode(), "p.csv", "PROP", Profile(), 300)
+    assert r.unusable is None and not any("preamble" in w for w in r.warnings)
+    assert [int(x) for t in r.trips for x in t.lines] == [3] and [line for line, _ in r.rejects] == [2, 4]
