@@ -33,6 +33,10 @@ from ingest.profile import Profile
     ("LR wheel speed m/s", "wheel_speed_rl", "m/s"),
     ("Yaw rate deg/s", "yaw_rate", "deg/s"),
     ("Lateral acceleration m/s²", "accel_lat", "m/s²"),
+    ("Wheel speed FL, km/h", "wheel_speed_fl", "km/h"),
+    ("Yaw rate | deg/s", "yaw_rate", "deg/s"),
+    ("Wheel speed FL {km/h}", "wheel_speed_fl", "km/h"),
+    ("GPS speed [km/h]", "vehicle_speed", "km/h"),
     # the other signals
     ("Yaw rate [deg/s]", "yaw_rate", "deg/s"),
     ("yawRate (rad/s)", "yaw_rate", "rad/s"),
