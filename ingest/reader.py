@@ -200,14 +200,17 @@ def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]
     """The header's line index and the preamble lines before it (indices).
 
     The header is the first non-blank, non-comment line that looks like one —
-    two or more fields, more of them names (text) than numbers — and has about
-    as many fields (±1, for a trailing delimiter) as one of the most frequent
-    counts of the next PREAMBLE_BODY_LINES lines, so one broken first row does
-    not disown its header and a few ``key,value`` lines do not pass for one. A
-    later line is the header only after a preamble: lines of under half its
-    fields (a title, ``key: value``, ``key,value``), with lines after it. Where
-    no line within PREAMBLE_MAX_LINES qualifies, the first line is taken, so
-    its problem (one column, say) is the one reported.
+    two or more fields, more of them names (text) than numbers — with about as
+    many fields (±1, for a trailing delimiter) as one of the most frequent
+    counts among the data rows of the next PREAMBLE_BODY_LINES lines (rows of
+    three or more fields, at least as many numbers as names), so one broken
+    row does not disown its header and ``key,value`` or title lines, which are
+    not data rows, do not vote. A later line is the header only after a
+    preamble: lines of under half its fields (a title, ``key: value``,
+    ``key,value``). Where no line within PREAMBLE_MAX_LINES has data rows to
+    match, the first line that looks like a header after a preamble is taken
+    (its rows' problems are then the rows' own), else the first line, so its
+    problem (one column, say) is the one reported.
     """
     candidates = []
     for i in np.flatnonzero(~is_comment):
@@ -218,24 +221,35 @@ def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]
     if not candidates:
         raise FileUnusable("no header line (only blank or comment lines)")
     lines = [line_text(data, starts, stops, i) for i in candidates]
+    first_named = None  # the first line that looks like a header after a preamble (or none)
     for k, text in enumerate(lines[:PREAMBLE_MAX_LINES]):
         delimiter = _sniff_delimiter(text)
         fields = split_fields(text, delimiter)
-        numbers = sum(is_number(f) for f in fields)
-        names = sum(bool(f.strip()) for f in fields) - numbers
+        names, numbers = _names_and_numbers(fields)
         if len(fields) < 2 or names <= numbers:
             continue
         if k and any(2 * len(split_fields(t, delimiter)) >= len(fields) for t in lines[:k]):
             continue  # what came before is not a preamble to this line
-        following = Counter(len(split_fields(t, delimiter)) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
-        if not following:
-            if k == 0:
-                return candidates[0], []
-            continue
-        top = max(following.values())
-        if any(abs(len(fields) - n) <= 1 for n, c in following.items() if c == top):
+        first_named = k if first_named is None else first_named
+        rows = (split_fields(t, delimiter) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
+        body = Counter(len(r) for r in rows if len(r) >= 3 and _names_and_numbers(r)[1] >= _names_and_numbers(r)[0])
+        top = max(body.values(), default=0)
+        if any(abs(len(fields) - n) <= 1 for n, c in body.items() if c == top):
             return candidates[k], candidates[:k]
-    return candidates[0], []
+    k = first_named or 0
+    return candidates[k], candidates[:k]
+
+
+def _names_and_numbers(fields: list[str]) -> tuple[int, int]:
+    """How many of a line's fields are names and how many values — numbers, or mostly digits like a
+    time stamp or a date (empty ones are neither)."""
+    numbers = sum(is_number(f) or _mostly_digits(f) for f in fields)
+    return sum(bool(f.strip()) for f in fields) - numbers, numbers
+
+
+def _mostly_digits(field: str) -> bool:
+    text = field.strip()
+    return len(text) >= 4 and 2 * sum(c.isdigit() for c in text) >= len(text)
 
 
 def split_fields(text: str, delimiter: str) -> list[str]:

@@ -6,7 +6,7 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from ingest.logfile import read_log
+from ingest.logfile import BOUNDS_SI, read_log
 from ingest.profile import Profile
 
 HEADER = "time,WSS FL [km/h],WSS FR [km/h],Yaw rate [deg/s],Brake"
@@ -80,4 +80,26 @@ def test_arbitrary_content_never_raises_and_every_row_is_accounted_for(headers, 
         assert (np.diff(times.astype("int64")) > 0).all()
         for name in ("wheel_speed_fl", "wheel_speed_fr"):
             v = t.samples.column(name).to_numpy(zero_copy_only=False)
-            assert all(math.isnan(x) or 0 <= x <= 90 for x in v)
+            lo, hi = BOUNDS_SI[name]  # negative while reversing
+            assert all(math.isnan(x) or lo <= x <= hi for x in v)
+
+
+preamble_line = st.one_of(
+    st.builds(lambda k, v: f"{k}: {v}", st.sampled_from(["Vehicle", "Export", "Units", "Created", "Logger"]),
+              st.text(alphabet=st.sampled_from(list("abcXYZ0123456789 -_.:/")), min_size=1, max_size=24)),
+    st.builds(lambda w: f"Trip log {w}", st.text(alphabet=st.sampled_from(list("abc 0123456789-.")), max_size=20)),
+    st.builds(lambda k, v: f"{k},{v}", st.sampled_from(["Tool", "Version", "Site"]),
+              st.text(alphabet=st.sampled_from(list("abc0123456789.")), min_size=1, max_size=8)))
+
+
+@_SETTINGS
+@given(mixed_log(), st.lists(preamble_line, min_size=1, max_size=5))
+def test_a_preamble_before_the_header_changes_nothing_but_the_line_numbers(case, preamble):
+    text, valid = case
+    plain = read_log(text.encode(), "p.csv", "PROP", Profile(), 300)
+    r = read_log(("\n".join(preamble) + "\n" + text).encode(), "p.csv", "PROP", Profile(), 300)
+    shift = len(preamble)
+    assert r.unusable is None
+    assert sorted(int(x) for t in r.trips for x in t.lines) == [line + shift for line in valid]
+    assert sorted(line for line, _ in r.rejects) == sorted(line + shift for line, _ in plain.rejects)
+    assert any("read as a preamble" in w for w in r.warnings)
