@@ -29,7 +29,6 @@ from features.wheels import (
     wheel_dropout_features,
     wheel_jitter_features,
     wheel_onset_features,
-    wheel_stale_features,
     wheel_ratio_features,
 )
 from features.windows import find_windows
@@ -45,8 +44,7 @@ from tracktrue.schema import CORE_FEATURES, NUMERIC_SIGNALS, POSITIONS, QUALITY_
 
 #: Features beyond DESIGN.md's table.
 EXTRA_FEATURES: tuple[str, ...] = (*(f"wheel_accel_disagree_{p}_g" for p in POSITIONS),
-                                   *(f"wheel_onset_{p}_mps" for p in POSITIONS),
-                                   *(f"wheel_stale_{p}_pct" for p in POSITIONS))
+                                   *(f"wheel_onset_{p}_mps" for p in POSITIONS))
 FEATURE_COLUMNS: tuple[str, ...] = (*CORE_FEATURES, *EXTRA_FEATURES)
 RESOLUTION_COLUMNS: tuple[str, ...] = tuple(f"resolution_{s}" for s in NUMERIC_SIGNALS)
 #: Per-trip sums for estimating a platform's steering ratio and understeer (features.platform_params).
@@ -96,7 +94,6 @@ def extract_trip_features(samples: pd.DataFrame | SampleColumns, spec: Mapping) 
     wheel_jitter_features(row, trip, windows)
     wheel_dropout_features(row, trip, distance_km)
     wheel_onset_features(row, trip)
-    wheel_stale_features(row, trip, windows)
     yaw_rest_feature(row, trip, windows)
     yaw_regression_features(row, trip, vehicle, windows, ref)
     steer_center_feature(row, trip, windows)

@@ -35,7 +35,6 @@ from features.signals import (
 from features.spec import VehicleSpec
 from features.windows import DROPOUT_ZERO_MPS, Windows
 from tracktrue.schema import POSITIONS
-from tracktrue.signal_quality import fresh_rate
 from tracktrue.units import DEG_RAD
 
 #: Straight cruise needed to calibrate relative radii.
@@ -52,11 +51,6 @@ JITTER_MIN_S = 30.0
 #: A wheel "reads zero" below DROPOUT_ZERO_MPS (features.windows) while the other three roll above this.
 ROLLING_MPS = 2.0
 DROPOUT_MIN_KM = 1.0
-#: Driving a wheel's staleness is compared over, at least, s.
-STALE_MIN_S = 60.0
-#: Above this share of repeats on the other wheels the logger itself repeats (polled PIDs: 23-82 % on
-#: the simulator's polled logs, bus capture 7-12 %), and a wheel's staleness is not judged.
-STALE_LOGGER_MAX = 0.2
 #: Dropped samples closer than this belong to one dropout episode, s.
 DROPOUT_MERGE_S = 1.0
 #: Signal onsets above this speed are dropouts while driving (wheel_dropouts), not a low-speed onset.
@@ -297,44 +291,6 @@ def wheel_dropout_features(row: FeatureRow, trip: TripArrays, distance_km: float
         if dropped.any():  # fill the short gaps between dropped samples: one episode
             dropped = ~keep_runs(~dropped, trip, DROPOUT_MERGE_S)
         row.set(name, 100.0 * count_events(dropped) / distance_km)
-
-
-def wheel_stale_features(row: FeatureRow, trip: TripArrays, windows: Windows) -> None:
-    """wheel_stale_<pos>_pct = 100 · (share of this wheel's values that repeat the one before while the
-    vehicle moves − the median share of the other wheels'), in percentage points, and 0 below it
-    (fewer repeats than the others is variation, wheel jitter's to judge: a damaged ring's).
-
-    A logger that polls slowly repeats every wheel's values alike, so the
-    difference stays near 0 on any logger; a wheel-speed signal that freezes
-    (a sensor or module holding its last value, a connector that opens) repeats
-    alone. The freeze is also why the gates take that wheel's jitter and false
-    accelerations out as stale values (features.gating): here it is the
-    evidence, not a reason to look away. Needs three wheels, STALE_MIN_S of
-    driving and a logger that refreshes the wheels (STALE_LOGGER_MAX): on
-    polled logs quantisation makes the share move with a wheel's own speed (a
-    tyre) and its noise (a ring). Source: wheel speeds only.
-    """
-    names = [f"wheel_stale_{p}_pct" for p in POSITIONS]
-    logged = [trip.has(f"wheel_speed_{p}") for p in POSITIONS]
-    moving_s = seconds(windows.moving, trip)
-    if sum(logged) < 3:  # the wheels' speeds are not logged (a telematics unit), or too few of them
-        row.nan_all(names, "signal_missing")
-        return
-    if moving_s < STALE_MIN_S:
-        row.nan_all(names, "too_little_driving")
-        return
-    shares = np.array([fresh_rate(trip.wheels[i], windows.moving, moving_s, trip.finite.get(f"wheel_speed_{p}"))[1]
-                       if logged[i] else np.nan for i, p in enumerate(POSITIONS)])
-    for i, name in enumerate(names):
-        others = np.delete(shares, i)
-        if not logged[i] or not np.isfinite(shares[i]) or np.isfinite(others).sum() < 2:
-            row.nan(name, "signal_missing" if not logged[i] else "too_little_driving")
-            continue
-        usual = float(np.nanmedian(others))
-        if usual > STALE_LOGGER_MAX:  # the logger repeats every wheel: a freeze would not stand out
-            row.nan(name, "stale_values")
-            continue
-        row.set(name, 100.0 * max(shares[i] - usual, 0.0))  # fewer repeats is variation: jitter's part
 
 
 def wheel_onset_features(row: FeatureRow, trip: TripArrays) -> None:

@@ -98,7 +98,6 @@ def describe_feature(name: str) -> tuple[str, str]:
         "wheel_dropouts": ("wheel-speed dropouts", "per 100 km"),
         "wheel_accel_disagree": ("wheel acceleration against the accelerometer", "g"),
         "wheel_onset": ("wheel signal missing up to", "m/s"),
-        "wheel_stale": ("wheel signal frozen (repeats beyond the other wheels')", "%"),
         "yaw_rest": ("yaw rate at standstill", "deg/s"),
         "yaw_offset": ("yaw-rate offset against the wheels", "deg/s"),
         "yaw_gain": ("yaw-rate gain against the wheels", ""),

@@ -54,7 +54,6 @@ FEATURE_FLOORS: dict[str, float] = {
     "wheel_jitter_": 0.01,  # %
     "wheel_dropouts_": 1.0,  # events per 100 km
     "wheel_onset_": 0.1,  # m/s: about one sample's speed change on a launch at a bus logger's 10 Hz
-    "wheel_stale_": 2.0,  # percentage points: healthy wheels differ by up to ±2 on fine polled logs
     "yaw_rest_dps": 0.02,
     "yaw_offset_dps": 0.02,
     "yaw_gain": 0.002,

@@ -29,7 +29,6 @@ import pytest
 import synthetic_fleet
 from features.extract import FEATURE_COLUMNS, extract_trip_features
 from features.row import parse_nan_reasons
-from models.peers import feature_floor
 from tracktrue.schema import POSITIONS
 
 VEHICLE_SEEDS = (41, 42, 43)
@@ -61,19 +60,15 @@ def healthy() -> dict[int, pd.DataFrame]:
 
 @lru_cache(maxsize=None)
 def healthy_spread() -> pd.Series:
-    """Per feature: the healthy spread (module docstring), and never below the smallest difference the
-    model resolves (models.peers.FEATURE_FLOORS): a feature whose healthy value is 0 (a wheel's
-    staleness beyond the others') has no spread of its own, and a move below its floor is no signal."""
     per_vehicle = pd.concat([h.max() - h.min() for h in healthy().values()], axis=1).max(axis=1)
     fleet = pd.concat(healthy().values())
-    spread = np.maximum(per_vehicle, FLEET_SHARE * (fleet.max() - fleet.min()))
-    return np.maximum(spread, pd.Series({f: feature_floor(f) for f in spread.index}))
+    return np.maximum(per_vehicle, FLEET_SHARE * (fleet.max() - fleet.min()))
 
 
 def per_wheel(family: str, pos: str) -> str:
     return {"ratio": f"wheel_ratio_{pos}_pct", "jitter": f"wheel_jitter_{pos}_pct",
             "dropouts": f"wheel_dropouts_{pos}", "accel": f"wheel_accel_disagree_{pos}_g",
-            "onset": f"wheel_onset_{pos}_mps", "stale": f"wheel_stale_{pos}_pct"}[family]
+            "onset": f"wheel_onset_{pos}_mps"}[family]
 
 
 def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None]:
@@ -86,12 +81,11 @@ def expectation(case: str) -> tuple[list[str], list[str], tuple[str, str] | None
     if kind == "tone_ring":
         return [per_wheel("jitter", pos), per_wheel("accel", pos)], rear_referenced, ("jitter", pos)
     if kind == "air_gap":
-        # dropout edges are false accelerations of that wheel too, and its zeros repeat (its staleness);
-        # the other wheels' onsets are taken against the median of the other three, which the dead
-        # wheel lowers a little
+        # dropout edges are false accelerations of that wheel too; the other wheels' onsets are taken
+        # against the median of the other three, which the dead wheel lowers a little
         others = [per_wheel("onset", p) for p in POSITIONS if p != pos]
-        return ([per_wheel("dropouts", pos), per_wheel("onset", pos)],
-                [per_wheel("accel", pos), per_wheel("stale", pos), *others], ("onset", pos))
+        return ([per_wheel("dropouts", pos), per_wheel("onset", pos)], [per_wheel("accel", pos), *others],
+                ("onset", pos))
     if kind in ("tyre_deflation", "tyre_mismatch", "spare"):
         return [per_wheel("ratio", pos)], ratios, ("ratio", pos)
     if case == "tyre_change":

@@ -188,21 +188,3 @@ def test_a_flickering_dropout_counts_as_one_episode_whatever_the_logging_rate():
         counts[hz] = extract_trip_features(samples, spec)["wheel_dropouts_fr"]
     assert counts[10.0] > 10.0  # the air gap does drop the signal out
     assert max(counts.values()) <= 1.5 * min(counts.values())  # unmerged: 163, 564 and 1,290 per 100 km
-
-
-def test_a_wheel_signal_frozen_at_one_value_stands_out_on_that_wheel_only():
-    # a sensor or module holding its last value: its samples repeat while the other wheels' change
-    import synthetic_fleet
-
-    samples, spec = synthetic_fleet.trip_samples(seed=7, duration_s=1200.0)
-    healthy = extract_trip_features(samples, spec)
-    frozen = samples.copy()
-    start, n = int(len(frozen) * 0.3), int(len(frozen) * 0.2)
-    frozen.loc[start:start + n, "wheel_speed_rl"] = frozen["wheel_speed_rl"].iloc[start]
-    row = extract_trip_features(frozen, spec)
-    assert row["wheel_stale_rl_pct"] > 10.0 > 2.0 > healthy["wheel_stale_rl_pct"]
-    assert all(row[f"wheel_stale_{p}_pct"] < 2.0 for p in ("fl", "fr", "rr"))
-    # a polled logger repeats every wheel: a freeze is not judged there, and says why
-    polled, spec = synthetic_fleet.trip_samples(seed=7, duration_s=1200.0, logger_kind="polled", rate_hz=2.0,
-                                                wheel_step_kph=1.0)
-    assert reasons(extract_trip_features(polled, spec))["wheel_stale_rl_pct"] == "stale_values"
