@@ -2,7 +2,7 @@
 
 ``tracktrue ingest PATH... [--store DIR] [--profile FILE.toml]
 [--vehicles vehicles.csv] [--trip-gap SECONDS]`` reads files and folders
-(recursively, ``*.csv``, ``*.txt`` and ``*.tsv`` in any case), recognises headers and
+(recursively, ``*.csv``, ``*.txt`` and ``*.tsv`` in any case, gzipped or not), recognises headers and
 units (ingest/grammar.py; a TOML mapping profile for the rest,
 ingest/profile.py), converts every signal to SI, validates every row, splits
 logs into trips on time gaps, and writes the store's raw layer

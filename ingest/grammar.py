@@ -144,12 +144,20 @@ def normalise_unit(unit: str) -> str:
     ``deg/s``; ``mi/hr`` -> ``mi/h``)."""
     u = unit.strip().lower()
     # SI's negative exponents, as instrument software writes them: "m s-2", "m·s⁻¹", "deg s^-1"
-    u = re.sub(r"^(.+?)[\s·.*]+(s|h)\^?(?:-|⁻)([12¹²])$", lambda m: f"{m[1]}/{m[2]}" + ("^2" if m[3] in "2²" else ""), u)
+    u = re.sub(r"^(.+?)[\s·.*]+(s|h)\^?(?:-|⁻)([12¹²])$",
+               lambda m: f"{m[1]}/{m[2]}" + ("^2" if m[3] in "2²" else ""), u)
     u = u.replace(" ", "").replace("²", "^2").replace("º", "°")
     u = re.sub(r"/sec(?=$|\^|2|/)", "/s", u)
     u = re.sub(r"/hr$", "/h", u)
     u = re.sub(r"^(.+)/s/s$", r"\1/s^2", u)  # m/s/s, ft/sec/sec
     return {"km/std": "km/h", "sec": "s", "volt": "v", "volts": "v", "degree": "deg", "miles/h": "mi/h"}.get(u, u)
+
+
+def vocabulary_key(text: str) -> str:
+    """Another tool's wording as a key of our vocabularies (registry columns, service-event kinds and
+    components): ``Tire Rotation`` -> ``tyre_rotation``, ``front-axle`` -> ``front_axle``."""
+    key = re.sub(r"[\s\-/]+", "_", text.strip().lower())
+    return re.sub(r"(?<![a-z])tire", "tyre", key)
 
 
 def signal_of(name_words: str) -> str | None:

@@ -232,7 +232,7 @@ def _find_header(data: bytes, starts, stops, is_comment) -> tuple[int, list[int]
             continue  # what came before is not a preamble to this line
         first_named = k if first_named is None else first_named
         rows = (split_fields(t, delimiter) for t in lines[k + 1:k + 1 + PREAMBLE_BODY_LINES])
-        body = Counter(len(r) for r in rows if len(r) >= 3 and _names_and_numbers(r)[1] >= _names_and_numbers(r)[0])
+        body = Counter(len(r) for r in rows if len(r) >= 3 and _is_data_row(r))
         top = max(body.values(), default=0)
         if any(abs(len(fields) - n) <= 1 for n, c in body.items() if c == top):
             return candidates[k], candidates[:k]
@@ -245,6 +245,11 @@ def _names_and_numbers(fields: list[str]) -> tuple[int, int]:
     time stamp or a date (empty ones are neither)."""
     numbers = sum(is_number(f) or _mostly_digits(f) for f in fields)
     return sum(bool(f.strip()) for f in fields) - numbers, numbers
+
+
+def _is_data_row(fields: list[str]) -> bool:
+    names, numbers = _names_and_numbers(fields)
+    return numbers >= names
 
 
 def _mostly_digits(field: str) -> bool:
@@ -275,8 +280,9 @@ def _metadata(data: bytes, starts, stops, comment_idx, preamble: list[int]) -> d
     """``# key: value`` lines, then a preamble's ``key: value`` lines (keys lower-cased); the first
     occurrence of a key wins."""
     out: dict[str, str] = {}
-    for pattern, lines in ((_META_RE, comment_idx[:200]), (_PREAMBLE_META_RE, preamble)):  # metadata sits in a
-        for i in lines:                                                                    # file's head: bounded
+    # metadata sits in a file's head: the comment scan is bounded, a preamble is short by construction
+    for pattern, lines in ((_META_RE, comment_idx[:200]), (_PREAMBLE_META_RE, preamble)):
+        for i in lines:
             m = pattern.match(data[starts[i]:stops[i]].decode("utf-8", "replace").rstrip("\n"))
             if m:
                 out.setdefault(m.group(1).strip().lower(), m.group(2))

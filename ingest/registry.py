@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ingest.grammar import split_unit
+from ingest.grammar import split_unit, vocabulary_key
 from ingest.reader import clean_text, parse_rows, read_keyed_csv, to_float
 from tracktrue.errors import UserError
 from tracktrue.schema import REGISTRY_OPTIONAL, REGISTRY_REQUIRED
@@ -44,7 +44,8 @@ PLAUSIBLE: dict[str, tuple[float, float]] = {
     "understeer_gradient_deg_per_g": (-2.0, 12.0),
 }
 _TEXT_COLUMNS = ("vehicle_id", "platform", "depot", "vin", "next_service_date")
-#: Length units a registry header may give, in metres (1 in = 0.0254 m, 1 ft = 0.3048 m exactly: NIST SP 811, appendix B).
+#: Length units a registry header may give, in metres (1 in = 0.0254 m, 1 ft = 0.3048 m exactly:
+#: NIST SP 811, appendix B).
 LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 0.01, "mm": 0.001, "in": 0.0254, "inch": 0.0254, "inches": 0.0254,
                                 "ft": 0.3048}
 
@@ -52,13 +53,13 @@ LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 0.01, "mm": 0.001, "in": 0.025
 def registry_column(header: str) -> tuple[str, float]:
     """(the registry column a header names, factor from its unit to the column's), module docstring."""
     name, unit = split_unit(header)
-    key = re.sub(r"(?<![a-z])tire", "tyre", re.sub(r"[\s\-]+", "_", name.strip().lower()))
+    key = vocabulary_key(name)
     if unit is None and (m := re.match(r"^(.*)_(m|cm|mm|in|inch|inches|ft)$", key)) and f"{m[1]}_m" in PLAUSIBLE:
         key, unit = m[1], m[2]
-    if unit is not None and f"{key}_m" in PLAUSIBLE and unit.strip().lower() in LENGTH_UNITS:
-        return f"{key}_m", LENGTH_UNITS[unit.strip().lower()]
+    unit = unit.strip().lower() if unit else None
+    if unit in LENGTH_UNITS and f"{key}_m" in PLAUSIBLE:
+        return f"{key}_m", LENGTH_UNITS[unit]
     return key, 1.0
-
 
 
 @dataclass

@@ -10,7 +10,7 @@ a header with ``vehicle_id``, ``date`` (YYYY-MM-DD), ``kind`` and optionally
 ``component`` and ``note``; comma, semicolon or tab separated, any case in
 the header. ``kind`` is one of ``tracktrue.schema.SERVICE_EVENT_KINDS`` or a
 spelling in ``SERVICE_EVENT_KIND_ALIASES`` (``alignment``, ``Tire replacement``: any case,
-spaces or hyphens for underscores, ``tire`` for ``tyre``); ``component`` is one of
+spaces or hyphens for underscores, ``tire`` for ``tyre``: ``ingest.grammar.vocabulary_key``); ``component`` is one of
 ``tracktrue.schema.COMPONENTS``, an area from ``SERVICE_EVENT_AREAS``
 (``front_axle``, ``rear_axle``, ``tyres`` for all four) or empty for the whole
 vehicle (``none`` is read as empty).
@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from ingest import catalog
+from ingest.grammar import vocabulary_key
 from ingest.reader import FileUnusable, clean_text, parse_rows, read_keyed_csv
 from tracktrue.errors import UserError
 from tracktrue.schema import (COMPONENTS, SERVICE_EVENT_AREAS, SERVICE_EVENT_KIND_ALIASES, SERVICE_EVENT_KINDS,
@@ -110,8 +111,8 @@ def validate_events(rows: pd.DataFrame, known_vehicles: set[str], today: dt.date
     problems: list[list[str]] = [[] for _ in range(len(rows))]
     vid = rows["vehicle_id"].fillna("").astype(str).str.strip()
     kind_text = rows["kind"].fillna("").astype(str).str.strip().str.lower()
-    kind = words_key(kind_text).replace(SERVICE_EVENT_KIND_ALIASES)
-    component = words_key(rows["component"].fillna("").astype(str)).replace({"none": ""})
+    kind = kind_text.map(vocabulary_key).replace(SERVICE_EVENT_KIND_ALIASES)
+    component = rows["component"].fillna("").astype(str).map(vocabulary_key).replace({"none": ""})
     date_text = rows["date"].fillna("").astype(str).str.strip()
     dates = [_parse_date(d) for d in date_text]
     for i, (v, k, kt, c, d, dtext) in enumerate(zip(vid, kind, kind_text, component, dates, date_text)):
@@ -145,13 +146,6 @@ def validate_events(rows: pd.DataFrame, known_vehicles: set[str], today: dt.date
     ok = np.array([not p for p in problems], bool)
     rejects = [(int(line), "; ".join(p)) for line, p, good in zip(rows["line"], problems, ok) if not good]
     return events[ok].reset_index(drop=True), rejects
-
-
-def words_key(text: pd.Series) -> pd.Series:
-    """A maintenance system's wording as our vocabulary's key: ``Tire Rotation`` -> ``tyre_rotation``,
-    ``wheel sensor FL`` -> ``wheel_sensor_fl``, ``front-axle`` -> ``front_axle``."""
-    key = text.str.strip().str.lower().str.replace(r"[\s\-/]+", "_", regex=True)
-    return key.str.replace(r"(?<![a-z])tire", "tyre", regex=True)
 
 
 def _parse_date(text: str) -> dt.date | None:

@@ -101,19 +101,23 @@ _UNREADABLE_HINTS: tuple[tuple[str, str], ...] = (
 
 
 def times_of_day(text: pa.Array) -> bool:
-    """Whether most of a time column's first 1000 values are times of day (``07:14:00.250``)."""
-    sample = text.drop_null().slice(0, 1000)
-    return len(sample) > 0 and _count_matching(sample, _TIME_OF_DAY_RE) * 2 > len(sample)
+    """Whether most of a time column's values are times of day (``07:14:00.250``)."""
+    return _mostly_matching(text, _TIME_OF_DAY_RE)
 
 
 def _unreadable_reason(text: pa.Array) -> str:
     """Why a time column none of whose values is ISO 8601 or a number cannot be read, with a hint
     where most values take a form exports commonly use."""
-    sample = text.drop_null().slice(0, 1000)
     for pattern, reason in _UNREADABLE_HINTS:
-        if len(sample) and _count_matching(sample, pattern) * 2 > len(sample):
+        if _mostly_matching(text, pattern):
             return reason
     return "is neither an ISO 8601 time nor a number"
+
+
+def _mostly_matching(text: pa.Array, pattern: str) -> bool:
+    """Whether more than half of the first 1000 known texts match ``pattern``."""
+    sample = text.drop_null().slice(0, 1000)
+    return len(sample) > 0 and _count_matching(sample, pattern) * 2 > len(sample)
 
 
 def _mostly_iso(text: pa.Array) -> bool:

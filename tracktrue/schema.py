@@ -213,7 +213,7 @@ SERVICE_EVENT_KINDS: tuple[str, ...] = (
     "no_fault_found",
 )
 #: Other spellings accepted on import and stored as the kind they name (after lower case, spaces and
-#: hyphens as underscores, and "tire" as "tyre": ingest.service_events.words_key).
+#: hyphens as underscores, and "tire" as "tyre": ingest.grammar.vocabulary_key).
 SERVICE_EVENT_KIND_ALIASES: dict[str, str] = {
     "alignment": "wheel_alignment", "tracking": "wheel_alignment",
     "tyre_replacement": "tyre_change", "tyre_replaced": "tyre_change", "tyres_replaced": "tyre_change",
