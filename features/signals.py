@@ -504,59 +504,10 @@ def dithered_mean(x: np.ndarray, step: float) -> float:
     return float(np.mean(x[np.abs(x - centre) <= half_width]))
 
 
-#: Rows at least this long take their median from a band that a strided sample brackets.
-BRACKET_MIN_SAMPLES = 4096
-BRACKET_STRIDE = 8
-
-
 def _row_medians(x: np.ndarray, overwrite_input: bool = False) -> np.ndarray:
-    """Median of each row of a finite (k, m) array, m > 0 (see ``median``); ``overwrite_input``
-    partitions ``x`` itself instead of a copy (np.partition is a copy partitioned in place)."""
-    m = x.shape[1]
-    if m >= BRACKET_MIN_SAMPLES:
-        return np.array([_bracketed_median(row) for row in x])
-    return _partitioned_medians(x, overwrite_input)
-
-
-def _bracketed_median(row: np.ndarray) -> float:
-    """The median of one long finite row, from a partition of only the values near it.
-
-    A strided sample of every BRACKET_STRIDE-th value brackets the median
-    between two of its order statistics ±4 standard errors of rank (√s/2 in
-    a sample of s) from its middle; counting the values below and within the
-    bracket gives the ranks, and only the bracket's values are partitioned
-    (Floyd & Rivest's SELECT, 1975, from memory; here the sample is taken by stride). The same
-    two order statistics as a whole partition, so the same value to the
-    last bit; where the bracket misses the middle ranks (a row ordered so
-    that the stride sees an unrepresentative sample), the whole row is
-    partitioned instead. Two to four times faster on the jitter's pair
-    differences and the window medians of a long trip.
-    """
-    m = row.size
-    upper_rank, lower_rank = m // 2, (m - 1) // 2
-    sample = row[::BRACKET_STRIDE]
-    half = int(2.0 * np.sqrt(sample.size)) + 2
-    a, b = max(sample.size // 2 - half, 0), min(sample.size // 2 + half, sample.size - 1)
-    part = np.partition(sample, (a, b))
-    lo, hi = part[a], part[b]
-    below = np.count_nonzero(row < lo)
-    in_band = row <= hi
-    upto = np.count_nonzero(in_band)
-    if below > lower_rank or upto <= upper_rank:
-        return float(_partitioned_medians(row.reshape(1, m))[0])
-    if lo == hi:  # ties: both middle values are this one
-        return float(0.5 * (lo + hi))
-    in_band &= row >= lo
-    band = row[in_band]
-    j = upper_rank - below
-    band.partition(j)
-    upper = band[j]
-    lower = band[:j].max() if m % 2 == 0 else upper
-    return float(0.5 * (lower + upper))
-
-
-def _partitioned_medians(x: np.ndarray, overwrite_input: bool = False) -> np.ndarray:
-    """``_row_medians`` by one partition of each whole row."""
+    """Median of each row of a finite (k, m) array, m > 0 (see ``median``), by one partition of each
+    whole row; ``overwrite_input`` partitions ``x`` itself instead of a copy (np.partition is a copy
+    partitioned in place)."""
     m = x.shape[1]
     if overwrite_input:
         x.partition(m // 2, axis=1)
