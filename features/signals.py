@@ -358,12 +358,15 @@ def _bridge(row: np.ndarray, ok: np.ndarray) -> None:
     values are the same as interpolating from the whole trace, without
     gathering it.
     """
-    missing = np.flatnonzero(~ok)
-    if missing.size == 0:
+    gap = ~ok
+    if not gap.any():
         return
-    around = np.union1d(missing - 1, missing + 1)
-    around = around[(around >= 0) & (around < row.size)]
-    around = around[ok[around]]
+    beside = np.zeros(row.size, dtype=bool)  # known samples next to a missing one, in order (no sort)
+    beside[:-1] |= gap[1:]
+    beside[1:] |= gap[:-1]
+    beside &= ok
+    around = np.flatnonzero(beside)
+    missing = np.flatnonzero(gap)
     row[missing] = np.interp(missing, around, row[around])
 
 
