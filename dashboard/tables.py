@@ -19,6 +19,7 @@ import duckdb
 import pandas as pd
 import streamlit as st
 
+from tracktrue.duckframes import to_frame
 from tracktrue.store import SCHEMA_FILE, Store, TableMissing
 
 #: The stage command that publishes each table, for the "not yet published" note.
@@ -64,7 +65,7 @@ def run_query(store: Store, sql: str, params: Sequence = ()) -> pd.DataFrame:
     sources = {name: f"({'SELECT * FROM ' + table_source(store, name)})" for name in _TABLE_REF.findall(sql)}
     con = duckdb.connect(":memory:")
     try:
-        return con.execute(_TABLE_REF.sub(lambda m: sources[m.group(1)], sql), list(params)).df()
+        return to_frame(con.execute(_TABLE_REF.sub(lambda m: sources[m.group(1)], sql), list(params)))
     finally:
         con.close()
 
@@ -110,8 +111,8 @@ def read_trip_samples(root: str, sample_file: str, trip_id: str) -> pd.DataFrame
     """One trip's canonical samples, ordered by time (uncached)."""
     con = duckdb.connect(":memory:")
     try:
-        return con.execute("SELECT * FROM read_parquet(?) WHERE trip_id = ? ORDER BY time",
-                           [str(Path(root) / sample_file), trip_id]).df()
+        return to_frame(con.execute("SELECT * FROM read_parquet(?) WHERE trip_id = ? ORDER BY time",
+                                    [str(Path(root) / sample_file), trip_id]))
     finally:
         con.close()
 

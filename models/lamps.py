@@ -26,6 +26,7 @@ import logging
 import duckdb
 import pandas as pd
 
+from tracktrue.duckframes import to_frame
 from tracktrue.store import Store
 
 log = logging.getLogger(__name__)
@@ -64,10 +65,10 @@ def read_trip_lamps(store: Store, trip_ids: pd.Series) -> pd.DataFrame:
         esc_e = "bool_or(coalesce(lamp_esc, false))" if "lamp_esc" in cols else "false"
         dtc_e = ("coalesce(string_agg(DISTINCT nullif(trim(dtc), ''), ' '), '')" if "dtc" in cols else "''")
         lit = " OR ".join([f"coalesce({c}, false)" for c in ("lamp_abs", "lamp_esc") if c in cols]) or "false"
-        df = con.execute(
+        df = to_frame(con.execute(
             f"SELECT trip_id, {abs_e} AS lamp_abs_on, {esc_e} AS lamp_esc_on, {dtc_e} AS dtc, "
             f"arg_min({lit}, time) AS lamp_at_start FROM rel GROUP BY trip_id"
-        ).df()
+        ))
     finally:
         con.close()
     got = empty[["trip_id"]].merge(df, on="trip_id", how="left")
